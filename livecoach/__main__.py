@@ -1,0 +1,5 @@
+import sys
+
+from livecoach.cli.main import main
+
+sys.exit(main())

@@ -1,0 +1,1 @@
+"""Command-line interface: one entry point ``livecoach`` with subcommands."""

@@ -1,0 +1,31 @@
+"""Small helpers shared by subcommands."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from typing import Any
+
+
+def add_config_argument(parser: argparse.ArgumentParser, required: bool = True) -> None:
+    parser.add_argument(
+        "--config", "-c", metavar="RIDE.toml", required=required,
+        help="the ride file (see `livecoach init`)",
+    )
+
+
+def _clean(value: Any) -> Any:
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_clean(v) for v in value]
+    return value
+
+
+def print_json(obj: Any) -> None:
+    """Print ``obj`` as JSON on stdout: sorted keys, NaN/inf as null, stable output."""
+    sys.stdout.write(json.dumps(_clean(obj), sort_keys=True, indent=2) + "\n")

@@ -1,0 +1,44 @@
+"""One root exception type for the whole project, with specific subclasses.
+
+Every error a user can cause carries a message that says what was wrong and
+where (file, key, line, byte offset), so the CLI can print it without a
+traceback.
+"""
+
+from __future__ import annotations
+
+
+class LivecoachError(Exception):
+    """Root of every error livecoach raises on purpose."""
+
+
+class ConfigError(LivecoachError):
+    """A ride file or scenario file is missing, unreadable or invalid."""
+
+
+class PhysicsError(LivecoachError):
+    """A physics computation got inputs outside its domain (e.g. negative mass)."""
+
+
+class NoSolutionError(PhysicsError):
+    """A root finder or planner found no solution (e.g. a power too low to climb)."""
+
+
+class DecodeError(LivecoachError):
+    """A sensor payload (BLE bytes, serial line, NMEA sentence) could not be decoded."""
+
+
+class RecordingError(LivecoachError):
+    """A recording file is missing, corrupt, or cannot be written."""
+
+
+class SourceError(LivecoachError):
+    """A sensor source (serial port, BLE adapter) failed in a way the caller must see."""
+
+
+class PlanError(LivecoachError):
+    """The run-up cannot be planned with the given course, vehicle and rider."""
+
+
+class CsvImportError(LivecoachError):
+    """A CSV ride file is missing a required column or has bad values."""

@@ -1,0 +1,1 @@
+"""The processing pipeline: a pure, deterministic function of the event sequence."""

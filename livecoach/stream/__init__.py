@@ -1,0 +1,1 @@
+"""The one event stream: raw events in (from any source), outputs out."""
