@@ -1,0 +1,302 @@
+"""The processing pipeline: RawEvent -> samples -> estimates, coaching -> LiveState.
+
+A pure, deterministic function of the event sequence: no wall clock, no
+randomness, no I/O. The live loop, replay, the simulator's closed loop and
+the CSV import all drive this same object, so a replay of a recording gives
+the very outputs the live run gave.
+
+Stages (each its own module):
+    decode      livecoach.pipeline.decode.Decoder          bytes -> samples
+    estimate    livecoach.estimate.LiveDragEstimator        kinematics, CdA/Crr, alarms
+    rider       livecoach.rider.WPrimeBalance              W' balance (Skiba 2015)
+    coach       livecoach.coach.LiveCoach                  target power, cues, trap prediction
+    bookkeeping health (staleness, gaps), trap timing, phase, summary
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Iterable
+
+from livecoach.config.ridefile import RideConfig
+from livecoach.pipeline.health import HealthTracker
+from livecoach.pipeline.state import (
+    NOTICE_ALARM,
+    NOTICE_PHASE,
+    NOTICE_WARNING,
+    PHASE_DONE,
+    PHASE_RUNUP,
+    PHASE_TRAP,
+    PHASE_WAITING,
+    LiveState,
+    Notice,
+)
+from livecoach.pipeline.trap import TrapTimer
+from livecoach.stream.events import CH_CSC, CH_GPS, CH_MCU, CH_POWER, CH_TICK, RawEvent
+from livecoach.stream import samples as S
+
+#: Speed above which the vehicle counts as rolling (phase waiting -> runup), m/s.
+ROLLING_SPEED_MPS = 1.0
+
+#: Sample types the offline batch fit needs (kept only when ``keep_for_batch``).
+_BATCH_TYPES = (S.PowerSample, S.WheelSample, S.SpeedSample, S.AirSample, S.AltitudeSample,
+                S.GpsSample, S.LinkSample)
+
+#: Health channel used for each sample type that arrives without a raw event (CSV path).
+_CSV_CHANNEL = {
+    S.PowerSample: CH_POWER,
+    S.SpeedSample: CH_CSC,
+    S.WheelSample: CH_CSC,
+    S.GpsSample: CH_GPS,
+    S.AirSample: CH_MCU,
+}
+
+
+@dataclass(frozen=True, slots=True)
+class StepResult:
+    """What one event produced: the state after it and any notices."""
+
+    state: LiveState
+    notices: tuple[Notice, ...]
+
+
+class Pipeline:
+    """Feed events (or samples) in time order; read states, notices and a summary.
+
+    ``plan``: a :class:`livecoach.plan.Plan` for live coaching (None: no
+    coaching, estimation only). ``keep_for_batch``: keep the samples the
+    offline batch fit needs, for :meth:`summary` (replay; the live loop turns
+    it off so memory stays flat over hours).
+    """
+
+    def __init__(self, ride: RideConfig, plan: Any = None, *, keep_for_batch: bool = True) -> None:
+        from livecoach.coach import LiveCoach
+        from livecoach.estimate import LiveDragEstimator
+        from livecoach.pipeline.decode import Decoder
+        from livecoach.rider import WPrimeBalance
+
+        self.ride = ride
+        self.plan = plan
+        self.decoder = Decoder(ride)
+        self.estimator = LiveDragEstimator(ride)
+        self.w_prime = WPrimeBalance(ride.rider)
+        self.coach = LiveCoach(ride, plan) if plan is not None else None
+        self.health = HealthTracker()
+        self.trap = TrapTimer(ride.course.trap_entry_m, ride.course.trap_exit_m)
+        self.keep_for_batch = keep_for_batch
+        self._batch_samples: list[Any] = []
+        self._phase = PHASE_WAITING
+        self._first_t_s: float | None = None
+        self._last_t_s: float | None = None
+        self._samples = 0
+        self._rejected = 0
+        self._reject_reasons: dict[str, int] = {}
+        self._max_speed_mps = 0.0
+        self._power_w: float | None = None
+        self._cadence_rpm: float | None = None
+        self._heart_rate_bpm: float | None = None
+        self._airspeed_mps: float | None = None
+        self._wbal_j: float = ride.rider.w_prime_j
+        self._coach_out: Any = None
+        self._alarms: list[str] = []
+        self._warnings: list[str] = []
+        self._state: LiveState = LiveState(t_s=0.0, w_prime_balance_j=self._wbal_j,
+                                           w_prime_j=ride.rider.w_prime_j)
+
+    # ------------------------------------------------------------------ feeding
+    def feed(self, event: RawEvent) -> StepResult:
+        """Process one raw event (any channel). Never raises on bad payloads."""
+        if event.channel == CH_TICK:
+            return self._process(event.t_s, (), None)
+        try:
+            decoded = self.decoder.feed(event)
+        except Exception as exc:  # a decoder bug must not stop the loop: count it
+            decoded = [S.Rejected(event.t_s, event.channel, f"decoder error: {type(exc).__name__}: {exc}")]
+        return self._process(event.t_s, decoded, event.channel)
+
+    def feed_sample(self, sample: Any) -> StepResult:
+        """Process one already-decoded sample (CSV import path)."""
+        return self._process(sample.t_s, (sample,), _CSV_CHANNEL.get(type(sample)))
+
+    def feed_all(self, events: Iterable[RawEvent]) -> StepResult | None:
+        last = None
+        for ev in events:
+            last = self.feed(ev)
+        return last
+
+    # --------------------------------------------------------------- processing
+    def _process(self, t_s: float, decoded: Iterable[Any], channel: str | None) -> StepResult:
+        notices: list[Notice] = []
+        if not math.isfinite(t_s):
+            self._reject("non-finite receive time")
+            return StepResult(self._state, ())
+        if self._last_t_s is not None and t_s < self._last_t_s:
+            # Receive times come from one monotonic clock; an earlier one is a
+            # corrupt record. Keep the clock monotonic by clamping.
+            t_s = self._last_t_s
+        if self._first_t_s is None:
+            self._first_t_s = t_s
+        self._last_t_s = t_s
+
+        for s in decoded:
+            kind = type(s)
+            if kind is S.Rejected:
+                self._reject(s.reason)
+                self.health.rejected(s.channel)
+                continue
+            self._samples += 1
+            ch = channel if channel is not None else _CSV_CHANNEL.get(kind)
+            if kind is S.LinkSample:
+                self.health.link(s.channel, s.state == "up")
+                if s.state != "up":
+                    notices.append(Notice(t_s, NOTICE_WARNING, f"{s.channel} link {s.state}",
+                                          {"channel": s.channel, "state": s.state}))
+            elif ch is not None:
+                if self.health.valid(ch, t_s):
+                    notices.append(Notice(t_s, NOTICE_WARNING, f"{ch} values again",
+                                          {"channel": ch, "state": "recovered"}))
+            if kind is S.PowerSample:
+                if math.isfinite(s.power_w) and s.power_w >= 0.0:
+                    self._power_w = s.power_w
+                    self._wbal_j = self.w_prime.update(s.t_s, s.power_w)
+            elif kind is S.CadenceSample:
+                self._cadence_rpm = s.cadence_rpm
+            elif kind is S.HeartRateSample:
+                self._heart_rate_bpm = s.heart_rate_bpm
+            elif kind is S.AirSample and s.airspeed_mps is not None:
+                self._airspeed_mps = s.airspeed_mps
+            self.estimator.feed(s)
+            if self.keep_for_batch and kind in _BATCH_TYPES:
+                self._batch_samples.append(s)
+
+        for name in self.health.tick(t_s):
+            notices.append(Notice(t_s, NOTICE_WARNING, f"{name} stale: no valid value",
+                                  {"channel": name, "state": "stale"}))
+
+        snap = self.estimator.snapshot()
+        distance_m = snap.distance_m
+        speed_mps = snap.speed_mps
+        if speed_mps is not None and math.isfinite(speed_mps):
+            self._max_speed_mps = max(self._max_speed_mps, speed_mps)
+
+        # Trap timing and phase from the distance track.
+        if distance_m is not None:
+            crossed = self.trap.feed(t_s, distance_m)
+            new_phase = self._phase
+            if self._phase == PHASE_WAITING and speed_mps is not None and speed_mps > ROLLING_SPEED_MPS:
+                new_phase = PHASE_RUNUP
+            if crossed == "entry":
+                new_phase = PHASE_TRAP
+            elif crossed == "exit":
+                new_phase = PHASE_DONE
+            if new_phase != self._phase:
+                self._phase = new_phase
+                data: dict[str, Any] = {"phase": new_phase}
+                if crossed == "exit" and self.trap.trap_speed_mps is not None:
+                    data["trap_speed_mps"] = self.trap.trap_speed_mps
+                notices.append(Notice(t_s, NOTICE_PHASE, f"phase {new_phase}", data))
+
+        for alarm in self.estimator.pop_alarms():
+            self._alarms.append(alarm.text)
+            notices.append(Notice(alarm.t_s, NOTICE_ALARM, alarm.text,
+                                  {"kind": "drag_changed", "step_cda_m2": alarm.step_cda_m2,
+                                   "start_t_s": alarm.start_t_s}))
+
+        coach_out = self._coach_out
+        if self.coach is not None and distance_m is not None and speed_mps is not None:
+            coach_out = self.coach.update(
+                t_s, distance_m, speed_mps, self._power_w, self._wbal_j,
+                snap.cda_m2 if snap.cda_m2 is not None else self.ride.vehicle.cda_m2,
+                snap.crr if snap.crr is not None else self.ride.vehicle.crr,
+            )
+            self._coach_out = coach_out
+            notices.extend(coach_out.notices)
+
+        speed_stale = self.health.stale(CH_CSC, t_s) and self.health.stale(CH_GPS, t_s)
+        state = LiveState(
+            t_s=t_s,
+            phase=self._phase,
+            distance_m=distance_m,
+            distance_to_trap_m=(self.ride.course.trap_entry_m - distance_m) if distance_m is not None else None,
+            speed_mps=speed_mps,
+            speed_stale=speed_stale,
+            power_w=self._power_w,
+            power_stale=self.health.stale(CH_POWER, t_s),
+            cadence_rpm=self._cadence_rpm,
+            heart_rate_bpm=self._heart_rate_bpm,
+            airspeed_mps=self._airspeed_mps,
+            target_power_w=getattr(coach_out, "target_power_w", None),
+            planned_speed_mps=getattr(coach_out, "planned_speed_mps", None),
+            cue=getattr(coach_out, "cue", None),
+            cue_text=getattr(coach_out, "cue_text", None),
+            predicted_trap_speed_mps=getattr(coach_out, "predicted_trap_speed_mps", None),
+            planned_trap_speed_mps=getattr(self.plan, "trap_speed_mps", None),
+            w_prime_balance_j=self._wbal_j,
+            w_prime_j=self.ride.rider.w_prime_j,
+            cda_m2=snap.cda_m2,
+            cda_sd_m2=snap.cda_sd_m2,
+            crr=snap.crr,
+            crr_sd=snap.crr_sd,
+            alarms=tuple(self._alarms[-5:]),
+            sensors=self.health.snapshot(t_s),
+            trap_entry_t_s=self.trap.entry_t_s,
+            trap_exit_t_s=self.trap.exit_t_s,
+            trap_speed_mps=self.trap.trap_speed_mps,
+        )
+        self._state = state
+        return StepResult(state, tuple(notices))
+
+    def _reject(self, reason: str) -> None:
+        self._rejected += 1
+        key = reason.split(":")[0][:60]
+        self._reject_reasons[key] = self._reject_reasons.get(key, 0) + 1
+
+    # ------------------------------------------------------------------ results
+    @property
+    def state(self) -> LiveState:
+        return self._state
+
+    def add_warning(self, text: str) -> None:
+        """Add a warning for the summary (e.g. the recording reader's torn-tail note)."""
+        self._warnings.append(text)
+
+    def summary(self) -> dict[str, Any]:
+        """The replay JSON summary (stable keys, documented in README)."""
+        st = self._state
+        duration = (self._last_t_s - self._first_t_s) if self._first_t_s is not None else 0.0
+        batch_cda = batch_crr = None
+        warnings = list(self._warnings)
+        if self.keep_for_batch and self._batch_samples:
+            from livecoach.errors import LivecoachError
+            from livecoach.estimate import batch_fit
+
+            try:
+                fit = batch_fit(self._batch_samples, self.ride)
+                batch_cda, batch_crr = fit.cda_m2, fit.crr
+            except LivecoachError as exc:
+                warnings.append(f"batch fit: {exc}")
+        for reason, n in sorted(self._reject_reasons.items()):
+            warnings.append(f"rejected {n} payload(s): {reason}")
+        gating = getattr(self.estimator.snapshot(), "rejected", {}) or {}
+        return {
+            "samples": self._samples,
+            "duration_s": round(duration, 6),
+            "distance_m": st.distance_m,
+            "cda_m2": st.cda_m2,
+            "cda_sd_m2": st.cda_sd_m2,
+            "crr": st.crr,
+            "crr_sd": st.crr_sd,
+            "batch_cda_m2": batch_cda,
+            "batch_crr": batch_crr,
+            "rejected_samples": self._rejected,
+            "estimator_gated": dict(sorted(gating.items())),
+            "trap_speed_mps": self.trap.trap_speed_mps,
+            "trap_entry_t_s": self.trap.entry_t_s,
+            "trap_exit_t_s": self.trap.exit_t_s,
+            "max_speed_mps": self._max_speed_mps if self._samples else None,
+            "sensor_gaps": self.health.gaps_summary(self._last_t_s),
+            "predicted_trap_speed_mps": st.predicted_trap_speed_mps,
+            "alarms": list(self._alarms),
+            "warnings": warnings,
+        }
