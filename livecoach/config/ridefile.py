@@ -192,6 +192,29 @@ class RecordingConfig:
     )
 
 
+@dataclass(frozen=True, kw_only=True)
+class DisplayConfig:
+    """[display]: the rider's screen (livecoach.sinks.display)."""
+
+    speed_unit: str = setting("km/h", doc="unit of the big speed figure", choices=("km/h", "mph", "m/s"))
+    refresh_hz: float = setting(5.0, doc="screen redraws per second", unit="Hz", lo=0.5, hi=20.0)
+
+
+@dataclass(frozen=True, kw_only=True)
+class AudioConfig:
+    """[audio]: tone and spoken cues for the rider (livecoach.sinks.audio)."""
+
+    muted: bool = setting(False, doc="no sound at all")
+    voice: bool = setting(True, doc="speak the cue words with espeak-ng (when installed) after the tone")
+    player: str = setting("auto", doc="sound player", choices=("auto", "aplay", "paplay", "play", "none"))
+    min_interval_s: float = setting(2.0, doc="shortest time between the starts of two cues", unit="s", lo=0.0, hi=60.0)
+    repeat_after_s: float = setting(8.0, doc="the same cue is not repeated sooner", unit="s", lo=0.0, hi=600.0)
+    max_age_s: float = setting(3.0, doc="a cue still waiting after this is dropped as out of date", unit="s", lo=0.2, hi=60.0)
+    volume_pct: float = setting(80.0, doc="tone loudness", unit="%", lo=0.0, hi=100.0)
+    speech_voice: str = setting("en", doc="espeak-ng voice name")
+    words_per_minute: int = setting(185, doc="speaking rate", lo=80, hi=450)
+
+
 REQUIRED_SECTIONS: dict[str, type] = {
     "vehicle": VehicleConfig,
     "rider": RiderConfig,
@@ -204,6 +227,8 @@ REQUIRED_SECTIONS: dict[str, type] = {
 OPTIONAL_SECTIONS: dict[str, type] = {
     "sensors": SensorsConfig,
     "recording": RecordingConfig,
+    "display": DisplayConfig,
+    "audio": AudioConfig,
 }
 
 
