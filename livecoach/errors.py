@@ -28,6 +28,11 @@ class DecodeError(LivecoachError):
     """A sensor payload (BLE bytes, serial line, NMEA sentence) could not be decoded."""
 
 
+class EncodeError(LivecoachError):
+    """A measurement cannot be encoded: a field is out of its protocol range or
+    disagrees with the flags (used by the codecs' encoders and the simulator)."""
+
+
 class RecordingError(LivecoachError):
     """A recording file is missing, corrupt, or cannot be written."""
 
@@ -42,3 +47,8 @@ class PlanError(LivecoachError):
 
 class CsvImportError(LivecoachError):
     """A CSV ride file is missing a required column or has bad values."""
+
+
+class FrameError(DecodeError):
+    """A radio telemetry frame is corrupt: bad COBS stuffing, bad CRC, wrong
+    length, unknown version or type (the ground station counts and skips it)."""

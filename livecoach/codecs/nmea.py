@@ -1,0 +1,284 @@
+"""NMEA 0183 GPS sentences RMC, GGA and VTG, parsed with ``pynmea2``.
+
+Source: NMEA 0183 (National Marine Electronics Association), sentence
+formats RMC (recommended minimum: time, status, position, speed over ground
+in knots, course, date), GGA (fix: time, position, quality, satellites,
+HDOP, altitude) and VTG (course and speed over ground in knots and km/h).
+The checksum is the XOR of every character between ``$`` and ``*``, written
+as two hex digits. Latitude is ``ddmm.mmmm`` and longitude ``dddmm.mmmm``
+with a hemisphere letter. One knot is 1852 m per hour (international
+nautical mile, exact).
+
+Decoding requires a checksum (every GPS receiver sends one); sentences of
+other types decode to ``None`` (ignored, not an error).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from typing import Any
+
+from livecoach.codecs._errors import BAD_CHECKSUM, MALFORMED, NOT_UTF8, OUT_OF_RANGE, PayloadError
+from livecoach.errors import EncodeError
+from livecoach.stream.samples import GpsSample
+
+#: m/s per knot (1852 m / 3600 s, exact).
+MPS_PER_KNOT = 1852.0 / 3600.0
+#: m/s per km/h.
+MPS_PER_KMH = 1.0 / 3.6
+
+SENTENCE_TYPES = ("RMC", "GGA", "VTG")
+
+_pynmea2: Any = None
+_NUMBER = re.compile(r"[+-]?[0-9]*\.?[0-9]+\Z|[+-]?[0-9]+\.\Z")
+
+
+def _lib() -> Any:
+    global _pynmea2
+    if _pynmea2 is None:
+        import pynmea2
+
+        _pynmea2 = pynmea2
+    return _pynmea2
+
+
+def nmea_checksum(body: str) -> int:
+    """NMEA 0183 checksum: XOR of the characters of ``body`` (between ``$`` and ``*``)."""
+    c = 0
+    for b in body.encode("ascii"):
+        c ^= b
+    return c
+
+
+def _float(text: str, what: str) -> float | None:
+    if text == "":
+        return None
+    if not _NUMBER.match(text):
+        raise PayloadError(MALFORMED, f"{what} '{text}' is not a number")
+    try:
+        v = float(text)
+    except ValueError:
+        raise PayloadError(MALFORMED, f"{what} '{text}' is not a number") from None
+    if not math.isfinite(v):
+        raise PayloadError(MALFORMED, f"{what} '{text}' is not a finite number")
+    return v
+
+
+def _angle(value: str, hemisphere: str, degree_digits: int, what: str) -> float | None:
+    """ddmm.mmmm / dddmm.mmmm + N/S/E/W -> signed degrees."""
+    if value == "" and hemisphere == "":
+        return None
+    if len(value) < degree_digits + 2 or hemisphere not in ("NS" if degree_digits == 2 else "EW"):
+        raise PayloadError(MALFORMED, f"{what} '{value},{hemisphere}' is not d{'d' * degree_digits}mm.mmmm,hemisphere")
+    deg = _float(value[:degree_digits], what)
+    minutes = _float(value[degree_digits:], what)
+    if deg is None or minutes is None or deg < 0 or not 0.0 <= minutes < 60.0 or "-" in value:
+        raise PayloadError(MALFORMED, f"{what} '{value}' has bad degrees or minutes")
+    out = deg + minutes / 60.0
+    limit = 90.0 if degree_digits == 2 else 180.0
+    if out > limit:
+        raise PayloadError(OUT_OF_RANGE, f"{what} {out:.6f} deg exceeds {limit:g}")
+    return -out if hemisphere in "SW" else out
+
+
+def _speed(v: float | None, what: str) -> float | None:
+    if v is not None and not 0.0 <= v < 300.0:
+        raise PayloadError(OUT_OF_RANGE, f"{what} {v:g} m/s is not in 0..300")
+    return v
+
+
+def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
+    """Decode one NMEA sentence (ASCII bytes, CR LF optional) received at ``t_s`` (s).
+
+    Returns a :class:`GpsSample` for RMC, GGA and VTG (any talker ID), ``None``
+    for other well-formed sentences. Raises :class:`livecoach.errors.DecodeError`
+    for non-ASCII bytes, a missing or wrong checksum, or malformed fields.
+    Speeds are converted to m/s; a void RMC/GGA/VTG gives ``valid=False``
+    with no position.
+    """
+    try:
+        text = line.decode("ascii").strip()
+    except UnicodeDecodeError as exc:
+        raise PayloadError(NOT_UTF8, f"non-ASCII byte 0x{line[exc.start]:02X} at offset {exc.start}") from None
+    star = text.rfind("*")
+    if not text.startswith("$") or star < 0 or len(text) - star != 3:
+        raise PayloadError(MALFORMED, f"not a '$...*hh' NMEA sentence: '{text[:40]}'")
+    try:
+        want = int(text[star + 1:], 16)
+    except ValueError:
+        raise PayloadError(MALFORMED, f"checksum '{text[star + 1:]}' is not two hex digits") from None
+    got = nmea_checksum(text[1:star])
+    if got != want:
+        raise PayloadError(BAD_CHECKSUM, f"sentence says {want:02X}, the characters give {got:02X}")
+    lib = _lib()
+    try:
+        msg = lib.parse(text, check=True)
+    except lib.ChecksumError as exc:  # pragma: no cover - checked above
+        raise PayloadError(BAD_CHECKSUM, str(exc)) from None
+    except (lib.ParseError, ValueError, TypeError, AttributeError) as exc:
+        raise PayloadError(MALFORMED, f"pynmea2 cannot parse it: {exc}") from None
+    kind = getattr(msg, "sentence_type", "")
+    if kind not in SENTENCE_TYPES:
+        return None
+    data = list(msg.data)
+
+    def field(i: int) -> str:
+        return data[i].strip() if i < len(data) else ""
+
+    if kind == "RMC":
+        if len(data) < 9:
+            raise PayloadError(MALFORMED, f"RMC has {len(data)} fields, needs at least 9")
+        status = field(1)
+        mode = field(11)
+        valid = status == "A" and mode != "N"
+        lat = _angle(field(2), field(3), 2, "RMC latitude")
+        lon = _angle(field(4), field(5), 3, "RMC longitude")
+        knots = _float(field(6), "RMC speed")
+        return GpsSample(
+            t_s=t_s,
+            valid=valid,
+            latitude_deg=lat if valid else None,
+            longitude_deg=lon if valid else None,
+            speed_mps=_speed(None if knots is None else knots * MPS_PER_KNOT, "RMC speed") if valid else None,
+            course_deg=_float(field(7), "RMC course") if valid else None,
+            utc_time=field(0) or None,
+            utc_date=field(8) or None,
+        )
+    if kind == "GGA":
+        if len(data) < 9:
+            raise PayloadError(MALFORMED, f"GGA has {len(data)} fields, needs at least 9")
+        quality = _float(field(5), "GGA fix quality")
+        valid = quality is not None and quality > 0
+        lat = _angle(field(1), field(2), 2, "GGA latitude")
+        lon = _angle(field(3), field(4), 3, "GGA longitude")
+        sats = _float(field(6), "GGA satellites")
+        return GpsSample(
+            t_s=t_s,
+            valid=valid,
+            latitude_deg=lat if valid else None,
+            longitude_deg=lon if valid else None,
+            altitude_m=_float(field(8), "GGA altitude") if valid else None,
+            utc_time=field(0) or None,
+            satellites=None if sats is None else int(sats),
+            hdop=_float(field(7), "GGA HDOP"),
+        )
+    # VTG: true track, T, magnetic track, M, knots, N, km/h, K[, mode]
+    if len(data) < 8:
+        raise PayloadError(MALFORMED, f"VTG has {len(data)} fields, needs at least 8")
+    kmh = _float(field(6), "VTG speed km/h")
+    knots = _float(field(4), "VTG speed knots")
+    speed = kmh * MPS_PER_KMH if kmh is not None else (None if knots is None else knots * MPS_PER_KNOT)
+    mode = field(8)
+    valid = speed is not None and mode != "N"
+    return GpsSample(
+        t_s=t_s,
+        valid=valid,
+        speed_mps=_speed(speed, "VTG speed") if valid else None,
+        course_deg=_float(field(0), "VTG course") if valid else None,
+    )
+
+
+# --- encoders (simulator) ---------------------------------------------------
+
+def _sentence(body: str) -> bytes:
+    return f"${body}*{nmea_checksum(body):02X}".encode("ascii")
+
+
+def _lat_text(lat_deg: float) -> tuple[str, str]:
+    if not (math.isfinite(lat_deg) and -90.0 <= lat_deg <= 90.0):
+        raise EncodeError(f"NMEA: latitude {lat_deg!r} deg is outside -90..90")
+    a = abs(lat_deg)
+    d = int(a)
+    m = round((a - d) * 60.0, 5)
+    if m >= 60.0:
+        d, m = d + 1, 0.0
+    return f"{d:02d}{m:08.5f}", ("S" if lat_deg < 0 else "N")
+
+
+def _lon_text(lon_deg: float) -> tuple[str, str]:
+    if not (math.isfinite(lon_deg) and -180.0 <= lon_deg <= 180.0):
+        raise EncodeError(f"NMEA: longitude {lon_deg!r} deg is outside -180..180")
+    a = abs(lon_deg)
+    d = int(a)
+    m = round((a - d) * 60.0, 5)
+    if m >= 60.0:
+        d, m = d + 1, 0.0
+    return f"{d:03d}{m:08.5f}", ("W" if lon_deg < 0 else "E")
+
+
+def utc_time_text(seconds_of_day: float) -> str:
+    """``hhmmss.ss`` for a time of day in seconds (simulator helper)."""
+    s = round(seconds_of_day % 86400.0, 2) % 86400.0
+    h, rem = divmod(s, 3600.0)
+    m, sec = divmod(rem, 60.0)
+    return f"{int(h):02d}{int(m):02d}{sec:05.2f}"
+
+
+def encode_rmc(
+    *,
+    utc_time: str,
+    utc_date: str,
+    latitude_deg: float,
+    longitude_deg: float,
+    speed_mps: float,
+    course_deg: float,
+    valid: bool = True,
+    talker: str = "GP",
+) -> bytes:
+    """An RMC sentence (no CR LF) with mode indicator A (autonomous) or N when void."""
+    if speed_mps < 0 or not math.isfinite(speed_mps):
+        raise EncodeError(f"NMEA: speed {speed_mps!r} m/s must be finite and >= 0")
+    lat, ns = _lat_text(latitude_deg)
+    lon, ew = _lon_text(longitude_deg)
+    knots = speed_mps / MPS_PER_KNOT
+    body = (
+        f"{talker}RMC,{utc_time},{'A' if valid else 'V'},{lat},{ns},{lon},{ew},"
+        f"{knots:.3f},{course_deg % 360.0:.2f},{utc_date},,,{'A' if valid else 'N'}"
+    )
+    return _sentence(body)
+
+
+def encode_gga(
+    *,
+    utc_time: str,
+    latitude_deg: float,
+    longitude_deg: float,
+    altitude_m: float,
+    fix_quality: int = 1,
+    satellites: int = 8,
+    hdop: float = 0.9,
+    geoid_separation_m: float = 0.0,
+    talker: str = "GP",
+) -> bytes:
+    """A GGA sentence (no CR LF); altitude above mean sea level in m."""
+    lat, ns = _lat_text(latitude_deg)
+    lon, ew = _lon_text(longitude_deg)
+    body = (
+        f"{talker}GGA,{utc_time},{lat},{ns},{lon},{ew},{int(fix_quality)},{int(satellites):02d},"
+        f"{hdop:.1f},{altitude_m:.1f},M,{geoid_separation_m:.1f},M,,"
+    )
+    return _sentence(body)
+
+
+def encode_vtg(*, course_deg: float, speed_mps: float, valid: bool = True, talker: str = "GP") -> bytes:
+    """A VTG sentence (no CR LF): true course, speed in knots and km/h, mode A or N."""
+    if speed_mps < 0 or not math.isfinite(speed_mps):
+        raise EncodeError(f"NMEA: speed {speed_mps!r} m/s must be finite and >= 0")
+    body = (
+        f"{talker}VTG,{course_deg % 360.0:.2f},T,,M,{speed_mps / MPS_PER_KNOT:.3f},N,"
+        f"{speed_mps / MPS_PER_KMH:.3f},K,{'A' if valid else 'N'}"
+    )
+    return _sentence(body)
+
+
+__all__ = [
+    "MPS_PER_KMH",
+    "MPS_PER_KNOT",
+    "decode_nmea",
+    "encode_gga",
+    "encode_rmc",
+    "encode_vtg",
+    "nmea_checksum",
+    "utc_time_text",
+]
