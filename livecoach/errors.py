@@ -52,3 +52,8 @@ class CsvImportError(LivecoachError):
 class FrameError(DecodeError):
     """A radio telemetry frame is corrupt: bad COBS stuffing, bad CRC, wrong
     length, unknown version or type (the ground station counts and skips it)."""
+
+
+class SinkError(LivecoachError):
+    """An output for the rider (screen, sound) cannot work as set up: a
+    player or speech program is missing, or a sound file cannot be made."""
