@@ -102,9 +102,30 @@ class CourseConfig:
     )
     gpx: str = setting("", doc="GPX track file for the elevation profile (relative to the ride file)")
     name: str = setting("", doc="free text: the course's name")
-    # Filled by the loader: distances and elevations as tuples.
-    distances_m: tuple = field(default=(), repr=False)
-    elevations_m: tuple = field(default=(), repr=False)
+    # The profile as tuples: filled from ``elevation`` here, or from the GPX
+    # file by the loader. Not ride-file keys.
+    distances_m: tuple = field(default=(), repr=False, metadata={"internal": True})
+    elevations_m: tuple = field(default=(), repr=False, metadata={"internal": True})
+
+    def __post_init__(self) -> None:
+        if self.gpx and self.elevation:
+            raise ConfigError("give either elevation or gpx, not both")
+        if not self.distances_m and self.elevation:
+            ds, es = _elevation_points(self.elevation)
+            object.__setattr__(self, "distances_m", ds)
+            object.__setattr__(self, "elevations_m", es)
+        if self.distances_m:
+            if len(self.distances_m) != len(self.elevations_m) or len(self.distances_m) < 2:
+                raise ConfigError("the profile needs at least two points, as many elevations as distances")
+            self._check_coverage()
+
+    def _check_coverage(self) -> None:
+        ds = self.distances_m
+        if ds[0] > 0.0 or ds[-1] < self.runup_m + self.trap_m:
+            raise ConfigError(
+                f"the elevation profile covers {ds[0]:g}..{ds[-1]:g} m but must "
+                f"cover 0..{self.runup_m + self.trap_m:g} m (start line to trap exit)"
+            )
 
     @property
     def trap_entry_m(self) -> float:
@@ -150,6 +171,10 @@ class AirConfig:
     headwind_mps: float = setting(
         0.0, doc="wind along the course, + against the rider", unit="m/s", lo=-30.0, hi=30.0
     )
+
+    def __post_init__(self) -> None:
+        if self.pressure_pa is not None and self.altitude_m is not None:
+            raise ConfigError("give either pressure_pa or altitude_m, not both")
 
     @property
     def station_pressure_pa(self) -> float:
@@ -224,17 +249,41 @@ REQUIRED_SECTIONS: dict[str, type] = {
 
 #: Optional sections: name -> dataclass with defaults for every key. Other
 #: parts of the module register their sections here (see ``register_section``).
-OPTIONAL_SECTIONS: dict[str, type] = {
+OPTIONAL_SECTIONS: dict[str, type | str] = {
     "sensors": SensorsConfig,
     "recording": RecordingConfig,
     "display": DisplayConfig,
     "audio": AudioConfig,
+    "estimator": "livecoach.estimate.settings:EstimatorConfig",
+    "web": "livecoach.web.config:WebConfig",
+    "radio": "livecoach.telemetry.config:RadioConfig",
 }
 
 
-def register_section(name: str, cls: type) -> None:
-    """Register an optional ride-file section ``[name]`` validated by ``cls``."""
+def register_section(name: str, cls: type | str) -> None:
+    """Register an optional ride-file section ``[name]`` validated by ``cls``.
+
+    ``cls`` may also be ``"package.module:ClassName"``: the module is then
+    imported only when a ride file has that section or the section is asked
+    for, so the name is known to every command without importing the module.
+    """
     OPTIONAL_SECTIONS[name] = cls
+
+
+def section_class(name: str) -> type:
+    """The dataclass of optional section ``[name]`` (importing it if registered by name)."""
+    if name not in OPTIONAL_SECTIONS:
+        raise ConfigError(
+            f"no ride-file section named [{name}]; " + nearest_name(name, list(OPTIONAL_SECTIONS))
+        )
+    cls = OPTIONAL_SECTIONS[name]
+    if isinstance(cls, str):
+        import importlib
+
+        module_name, _, attr = cls.partition(":")
+        cls = getattr(importlib.import_module(module_name), attr)
+        OPTIONAL_SECTIONS[name] = cls
+    return cls
 
 
 @dataclass(frozen=True)
@@ -254,9 +303,7 @@ class RideConfig:
         """An optional section's dataclass (defaults if the file has none)."""
         if name in self.extra:
             return self.extra[name]
-        if name not in OPTIONAL_SECTIONS:
-            raise ConfigError(f"no ride-file section named [{name}]")
-        return OPTIONAL_SECTIONS[name]()
+        return section_class(name)()
 
     @property
     def sensors(self) -> SensorsConfig:
@@ -270,31 +317,36 @@ class RideConfig:
         return self.vehicle.model(cda_m2, crr)
 
 
-def _elevation_points(
-    raw: Any, source: str
-) -> tuple[tuple[float, ...], tuple[float, ...]]:
-    where = f"{source}: [course] elevation"
-    if not isinstance(raw, list) or len(raw) < 2:
-        raise ConfigError(f"{where}: expected a list of at least two [distance_m, elevation_m] points")
+def _elevation_points(raw: Any) -> tuple[tuple[float, ...], tuple[float, ...]]:
+    """Distances and elevations, m, from ``[[distance_m, elevation_m], ...]``.
+
+    Raises ConfigError naming the point when a point is malformed, not finite,
+    out of range, or its distance does not increase.
+    """
+    where = "elevation"
+    if not isinstance(raw, (list, tuple)) or len(raw) < 2:
+        raise ConfigError(
+            f"{where} = {raw!r}: expected a list of at least two [distance_m, elevation_m] points"
+        )
     ds: list[float] = []
     es: list[float] = []
     for i, point in enumerate(raw):
         if (
-            not isinstance(point, list)
+            not isinstance(point, (list, tuple))
             or len(point) != 2
             or not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in point)
         ):
-            raise ConfigError(f"{where}[{i}] = {point!r}: expected [distance_m, elevation_m]")
+            raise ConfigError(f"{where}[{i}] = {point!r}: expected [distance_m, elevation_m] (two numbers)")
         d, e = float(point[0]), float(point[1])
         if not (math.isfinite(d) and math.isfinite(e)):
-            raise ConfigError(f"{where}[{i}] = {point!r}: not a finite number")
+            raise ConfigError(f"{where}[{i}] = {point!r}: expected finite numbers")
         if ds and d <= ds[-1]:
             raise ConfigError(
-                f"{where}[{i}]: distance {d} m is not greater than the previous point's "
-                f"{ds[-1]} m (distances must increase)"
+                f"{where}[{i}] = {point!r}: distance {d:g} m is not greater than the previous "
+                f"point's {ds[-1]:g} m (distances must increase)"
             )
         if not -500.0 <= e <= 9000.0:
-            raise ConfigError(f"{where}[{i}]: elevation {e} m is outside -500..9000 m")
+            raise ConfigError(f"{where}[{i}] = {point!r}: elevation {e:g} m is outside -500..9000 m")
         ds.append(d)
         es.append(e)
     return tuple(ds), tuple(es)
@@ -310,35 +362,53 @@ def _haversine_m(lat1: float, lon1: float, lat2: float, lon2: float) -> float:
 
 
 def read_gpx_profile(path: Path) -> tuple[tuple[float, ...], tuple[float, ...]]:
-    """Distance (m, cumulative great-circle) and elevation (m) from a GPX 1.1 track."""
+    """Distance (m, cumulative great-circle along the track) and elevation (m)
+    from the track points (or, without a track, route points) of a GPX 1.0/1.1 file.
+
+    Repeated positions are skipped. Raises ConfigError naming the file and point.
+    """
+    where = f"[course] gpx = '{path}'"
     if not path.is_file():
-        raise ConfigError(f"[course] gpx = '{path}': file not found")
+        raise ConfigError(f"{where}: file not found")
     try:
         root = ET.parse(path).getroot()
     except ET.ParseError as exc:
-        raise ConfigError(f"[course] gpx = '{path}': not valid XML ({exc})") from None
-    points = [el for el in root.iter() if el.tag.split("}")[-1] in ("trkpt", "rtept")]
+        raise ConfigError(f"{where}: not valid XML ({exc})") from None
+    except OSError as exc:
+        raise ConfigError(f"{where}: cannot be read ({exc})") from None
+    if root.tag.split("}")[-1] != "gpx":
+        raise ConfigError(f"{where}: not a GPX file (root element <{root.tag.split('}')[-1]}>)")
+    points = [el for el in root.iter() if el.tag.split("}")[-1] == "trkpt"]
+    if not points:
+        points = [el for el in root.iter() if el.tag.split("}")[-1] == "rtept"]
     ds: list[float] = []
     es: list[float] = []
-    prev = None
+    prev: tuple[float, float] | None = None
     for n, pt in enumerate(points):
         try:
             lat, lon = float(pt.attrib["lat"]), float(pt.attrib["lon"])
         except (KeyError, ValueError):
-            raise ConfigError(f"[course] gpx = '{path}': point {n} has no valid lat/lon") from None
+            raise ConfigError(f"{where}: point {n} has no valid lat/lon") from None
+        if not (math.isfinite(lat) and math.isfinite(lon) and -90.0 <= lat <= 90.0
+                and -180.0 <= lon <= 180.0):
+            raise ConfigError(f"{where}: point {n} has lat={lat!r}, lon={lon!r} out of range")
         ele_el = next((c for c in pt if c.tag.split("}")[-1] == "ele"), None)
         if ele_el is None or ele_el.text is None:
-            raise ConfigError(f"[course] gpx = '{path}': point {n} has no <ele> elevation")
-        ele = float(ele_el.text)
+            raise ConfigError(f"{where}: point {n} has no <ele> elevation")
+        try:
+            ele = float(ele_el.text.strip())
+        except ValueError:
+            raise ConfigError(f"{where}: point {n} has <ele>{ele_el.text}</ele>, not a number") from None
+        if not (math.isfinite(ele) and -500.0 <= ele <= 9000.0):
+            raise ConfigError(f"{where}: point {n} has elevation {ele!r} m, outside -500..9000 m")
         d = 0.0 if prev is None else ds[-1] + _haversine_m(prev[0], prev[1], lat, lon)
+        prev = (lat, lon)
         if ds and d <= ds[-1]:
-            prev = (lat, lon)
             continue  # repeated point
         ds.append(d)
         es.append(ele)
-        prev = (lat, lon)
     if len(ds) < 2:
-        raise ConfigError(f"[course] gpx = '{path}': fewer than two distinct track points")
+        raise ConfigError(f"{where}: fewer than two distinct track points")
     return tuple(ds), tuple(es)
 
 
@@ -356,37 +426,31 @@ def parse_ride_dict(data: dict[str, Any], source: str = "<ride file>", base_dir:
             raise ConfigError(f"{source}: section [{name}] is missing")
     vehicle = build_section(VehicleConfig, data["vehicle"], "vehicle", source)
     rider = build_section(RiderConfig, data["rider"], "rider", source)
-    course_raw = dict(data["course"])
-    for key in ("distances_m", "elevations_m"):
-        if key in course_raw:
-            raise ConfigError(f"{source}: unknown key '{key}' in [course]; did you mean 'elevation'?")
-    course = build_section(CourseConfig, course_raw, "course", source)
-    if course.gpx and course.elevation:
-        raise ConfigError(f"{source}: [course] give either elevation or gpx, not both")
+    course = build_section(CourseConfig, data["course"], "course", source)
     if course.gpx:
         gpx_path = Path(course.gpx)
         if not gpx_path.is_absolute() and base_dir is not None:
             gpx_path = base_dir / gpx_path
-        ds, es = read_gpx_profile(gpx_path)
-    elif course.elevation:
-        ds, es = _elevation_points(course.elevation, source)
-    else:
+        try:
+            ds, es = read_gpx_profile(gpx_path)
+        except ConfigError as exc:
+            raise ConfigError(f"{source}: {exc}") from None
+        object.__setattr__(course, "distances_m", ds)
+        object.__setattr__(course, "elevations_m", es)
+        try:
+            course._check_coverage()
+        except ConfigError as exc:
+            raise ConfigError(f"{source}: [course] gpx: {exc}") from None
+    elif not course.elevation:
         raise ConfigError(f"{source}: [course] needs an elevation table or a gpx file")
-    if ds[0] > 0.0 or ds[-1] < course.runup_m + course.trap_m:
-        raise ConfigError(
-            f"{source}: [course] the elevation profile covers {ds[0]:g}..{ds[-1]:g} m but must "
-            f"cover 0..{course.runup_m + course.trap_m:g} m (start line to trap exit)"
-        )
-    object.__setattr__(course, "distances_m", ds)
-    object.__setattr__(course, "elevations_m", es)
     air = build_section(AirConfig, data["air"], "air", source)
-    if air.pressure_pa is not None and air.altitude_m is not None:
-        raise ConfigError(f"{source}: [air] give either pressure_pa or altitude_m, not both")
     if air.pressure_pa is None and air.altitude_m is None:
-        raise ConfigError(f"{source}: [air] pressure_pa (or altitude_m) is missing")
+        raise ConfigError(
+            f"{source}: [air] pressure_pa is missing (station pressure, Pa; or give altitude_m)"
+        )
     extra = {
-        name: build_section(cls, data[name], name, source)
-        for name, cls in OPTIONAL_SECTIONS.items()
+        name: build_section(section_class(name), data[name], name, source)
+        for name in list(OPTIONAL_SECTIONS)
         if name in data
     }
     return RideConfig(vehicle, rider, course, air, extra, source, data, text)

@@ -18,6 +18,7 @@ from __future__ import annotations
 import math
 
 from livecoach.errors import PhysicsError
+from livecoach.physics._checks import finite
 
 #: Specific gas constant of dry air, J/(kg*K) (US Standard Atmosphere 1976: R*/M0).
 R_DRY_AIR_JPKGK = 287.05287
@@ -43,11 +44,13 @@ def _geopotential_m(altitude_m: float) -> float:
     return EARTH_RADIUS_M * altitude_m / (EARTH_RADIUS_M + altitude_m)
 
 
-def _check_altitude(altitude_m: float) -> None:
-    if not math.isfinite(altitude_m) or altitude_m < -1000.0 or altitude_m > 20000.0:
+def _check_altitude(altitude_m: float) -> float:
+    altitude_m = finite("altitude_m", altitude_m)
+    if altitude_m < -1000.0 or altitude_m > 20000.0:
         raise PhysicsError(
             f"altitude_m={altitude_m!r} is outside the supported range -1000..20000 m"
         )
+    return altitude_m
 
 
 def isa_temperature_k(altitude_m: float) -> float:
@@ -55,8 +58,7 @@ def isa_temperature_k(altitude_m: float) -> float:
 
     Source: U.S. Standard Atmosphere 1976 / ISO 2533 (layers 0 and 1).
     """
-    _check_altitude(altitude_m)
-    h = _geopotential_m(altitude_m)
+    h = _geopotential_m(_check_altitude(altitude_m))
     if h <= H_TROPOPAUSE_M:
         return T0_K + LAPSE_KPM * h
     return T0_K + LAPSE_KPM * H_TROPOPAUSE_M
@@ -68,13 +70,13 @@ def isa_pressure_pa(altitude_m: float) -> float:
     Source: U.S. Standard Atmosphere 1976 eqs. 33a/33b (barometric formula with
     a linear lapse rate in the troposphere, exponential in the isothermal layer).
     """
-    _check_altitude(altitude_m)
-    h = _geopotential_m(altitude_m)
+    h = _geopotential_m(_check_altitude(altitude_m))
+    # p = p0 * (T / T0) ** (g0 / (R * |L|)): pressure falls as temperature falls.
     exponent = G0_MPS2 / (R_DRY_AIR_JPKGK * -LAPSE_KPM)
     if h <= H_TROPOPAUSE_M:
-        return P0_PA * (T0_K / (T0_K + LAPSE_KPM * h)) ** exponent
+        return P0_PA * ((T0_K + LAPSE_KPM * h) / T0_K) ** exponent
     t11 = T0_K + LAPSE_KPM * H_TROPOPAUSE_M
-    p11 = P0_PA * (T0_K / t11) ** exponent
+    p11 = P0_PA * (t11 / T0_K) ** exponent
     return p11 * math.exp(-G0_MPS2 * (h - H_TROPOPAUSE_M) / (R_DRY_AIR_JPKGK * t11))
 
 
@@ -90,8 +92,8 @@ def saturation_vapour_pressure_pa(temperature_c: float) -> float:
     e_s = 611.21 * exp((18.678 - T/234.5) * T / (257.14 + T)), T in deg C.
     Valid about -40..+50 deg C (error < 0.05 % over 0..50 deg C per Buck).
     """
-    t = float(temperature_c)
-    if not math.isfinite(t) or t < -60.0 or t > 70.0:
+    t = finite("temperature_c", temperature_c)
+    if t < -60.0 or t > 70.0:
         raise PhysicsError(f"temperature_c={temperature_c!r} is outside -60..70 deg C")
     return 611.21 * math.exp((18.678 - t / 234.5) * (t / (257.14 + t)))
 
@@ -113,13 +115,9 @@ def air_density_kgpm3(
     rho = p_d / (R_d T) + p_v / (R_v T), with p_v = RH * e_s(T) (Buck 1981) and
     p_d = p - p_v (Dalton's law; ideal-gas mixture as in CIPM-2007 with Z = 1).
     """
-    for name, value in (
-        ("pressure_pa", pressure_pa),
-        ("temperature_c", temperature_c),
-        ("relative_humidity_pct", relative_humidity_pct),
-    ):
-        if not math.isfinite(value):
-            raise PhysicsError(f"{name}={value!r} is not a finite number")
+    pressure_pa = finite("pressure_pa", pressure_pa)
+    temperature_c = finite("temperature_c", temperature_c)
+    relative_humidity_pct = finite("relative_humidity_pct", relative_humidity_pct)
     if not 10_000.0 <= pressure_pa <= 120_000.0:
         raise PhysicsError(f"pressure_pa={pressure_pa!r} is outside 10000..120000 Pa")
     if not 0.0 <= relative_humidity_pct <= 100.0:

@@ -6,7 +6,7 @@ import argparse
 from importlib import resources
 from pathlib import Path
 
-from livecoach.errors import ConfigError
+from livecoach.errors import ConfigError, LivecoachError
 
 NAME = "init"
 HELP = "write a commented example ride file (invented demo vehicle and course) into DIR"
@@ -26,7 +26,10 @@ def run(args: argparse.Namespace) -> int:
     target = folder / "ride.toml"
     if target.exists() and not args.force:
         raise ConfigError(f"{target} exists already; use --force to overwrite it")
-    folder.mkdir(parents=True, exist_ok=True)
-    target.write_text(example_ride_text(), encoding="utf-8")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        target.write_text(example_ride_text(), encoding="utf-8")
+    except OSError as exc:
+        raise LivecoachError(f"cannot write {target}: {exc.strerror or exc}") from None
     print(f"wrote {target}")
     return 0
