@@ -1,0 +1,1 @@
+"""The live loop (imperative shell): sources -> queue -> pipeline -> sinks."""
