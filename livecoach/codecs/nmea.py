@@ -116,7 +116,7 @@ def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
         msg = lib.parse(text, check=True)
     except lib.ChecksumError as exc:  # pragma: no cover - checked above
         raise PayloadError(BAD_CHECKSUM, str(exc)) from None
-    except (lib.ParseError, ValueError, TypeError, AttributeError) as exc:
+    except Exception as exc:  # a third-party parser fed with garbage: any failure is a bad sentence
         raise PayloadError(MALFORMED, f"pynmea2 cannot parse it: {exc}") from None
     kind = getattr(msg, "sentence_type", "")
     if kind not in SENTENCE_TYPES:
