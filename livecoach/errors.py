@@ -57,3 +57,7 @@ class FrameError(DecodeError):
 class SinkError(LivecoachError):
     """An output for the rider (screen, sound) cannot work as set up: a
     player or speech program is missing, or a sound file cannot be made."""
+
+
+class ReportError(LivecoachError):
+    """A post-ride report cannot be made (no data, output folder not writable)."""
