@@ -28,6 +28,7 @@ from __future__ import annotations
 import collections
 import errno
 import os
+import struct
 import threading
 import time
 from pathlib import Path
@@ -244,12 +245,12 @@ class Recorder:
         parts: list[bytes] = []
         seq = self._seq
         n_ev = n_out = 0
-        try:
-            while True:
-                try:
-                    item = popleft()
-                except IndexError:
-                    break
+        while True:
+            try:
+                item = popleft()
+            except IndexError:
+                break
+            try:
                 if type(item) is tuple:
                     _, t_s, kind, value = item
                     parts.append(frame(TYPE_OUTPUT, seq, output_body(t_s, kind, canonical_json(value))))
@@ -257,11 +258,13 @@ class Recorder:
                 else:
                     parts.append(frame(TYPE_EVENT, seq, event_body(item.t_s, item.channel, item.payload)))
                     n_ev += 1
-                seq += 1
-        except (RecordingError, UnicodeEncodeError, TypeError, ValueError, AttributeError) as exc:
-            # A record that cannot be encoded is skipped (counted); the rest is kept.
-            self.dropped += 1
-            self._warn(f"recording: one record could not be encoded and was skipped ({exc})")
+            except (RecordingError, UnicodeEncodeError, TypeError, ValueError, AttributeError,
+                    struct.error) as exc:
+                # A record that cannot be encoded is skipped (counted); the rest is kept.
+                self.dropped += 1
+                self._warn(f"recording: one record could not be encoded and was skipped ({exc})")
+                continue
+            seq += 1
         data = b"".join(parts)
         try:
             self._write_all(data)
