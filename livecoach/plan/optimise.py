@@ -1,0 +1,188 @@
+"""Optimising the power profile of a run (pure Python, no scipy).
+
+Two steps, both deterministic:
+
+1. :func:`final_effort_search` — the best plan of the simplest useful shape:
+   hold CP, then go all-out from one node to the trap exit (the
+   bang-bang shape optimal-control studies of time trials find; Gordon
+   2005, de Jong et al. 2017). The hold trajectory is simulated once and
+   every candidate start of the closing effort is tried (coarse, then
+   node by node around the best).
+2. :func:`optimise_run` — from that start, the spectral projected gradient
+   method (:mod:`livecoach.plan.spg`) over every segment's control, with the
+   exact gradient of :func:`livecoach.plan.model.objective_and_gradient`,
+   so shapes other than bang-bang (recovering below CP, easing on a rise,
+   part efforts) are found when they are better.
+
+The objective is the trap time (s) plus a tie-breaking 1e-6 × run-up time,
+which only decides between plans of equal trap time (faster run-up wins).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+from livecoach.errors import PlanError
+from livecoach.plan.model import (
+    RunModel,
+    Trajectory,
+    check_finite_state,
+    objective_and_gradient,
+    segment_step,
+    simulate,
+)
+from livecoach.plan.spg import spg_minimise
+
+#: Weight of the run-up time in the objective (a tie-breaker only).
+RUNUP_WEIGHT = 1e-6
+
+Progress = Callable[[float], None]
+
+
+@dataclass(frozen=True, slots=True)
+class OptimisedRun:
+    """Result of an optimisation on a :class:`RunModel`.
+
+    powers_w: net power per segment, W; trajectory: the exact simulation of
+    those powers; objective_s: trap time (+ tie-breaker) of the trajectory;
+    spend/ease: the optimiser's controls (for warm starts); evaluations: number
+    of objective evaluations.
+    """
+
+    powers_w: tuple[float, ...]
+    trajectory: Trajectory
+    objective_s: float
+    trap_time_s: float
+    spend: tuple[float, ...]
+    ease: tuple[float, ...]
+    evaluations: int
+
+
+def trap_time_of(model: RunModel, traj: Trajectory) -> float:
+    """Time spent on the trap segments of ``model`` in ``traj``, s."""
+    total = 0.0
+    for k in range(model.n_segments):
+        if model.seg_in_trap[k]:
+            total += traj.time_s[k + 1] - traj.time_s[k]
+    return total
+
+
+def final_effort_search(
+    model: RunModel, start_speed_mps: float, start_balance_j: float, *, max_candidates: int = 40
+) -> tuple[int, float]:
+    """Best node to start an all-out effort after holding CP: (segment index, objective s).
+
+    Index ``n_segments`` means "hold CP to the end". Objective as in the
+    module doc.
+    """
+    check_finite_state(start_speed_mps, start_balance_j)
+    n = model.n_segments
+    cp, kk = model.cp_w, model.decline_rate_per_j
+    trap = model.seg_in_trap
+    # Hold trajectory: states at every node and the cost accumulated so far.
+    states = [(start_speed_mps, 0.5 * start_speed_mps**2, start_balance_j)]
+    cost_before = [0.0]
+    v, E, w = states[0]
+    cost = 0.0
+    for k in range(n):
+        v, E, w, dt, _ = segment_step(model, k, v, E, w, cp)
+        cost += dt if trap[k] else RUNUP_WEIGHT * dt
+        states.append((v, E, w))
+        cost_before.append(cost)
+
+    def all_out_from(k: int) -> float:
+        if k >= n:
+            return cost_before[n]
+        v, E, w = states[k]
+        c = cost_before[k]
+        for j in range(k, n):
+            p = cp + kk * (w if w > 0.0 else 0.0)
+            v, E, w, dt, _ = segment_step(model, j, v, E, w, p)
+            c += dt if trap[j] else RUNUP_WEIGHT * dt
+        return c
+
+    stride = max(1, n // max_candidates)
+    candidates = list(range(n, -1, -stride))
+    if candidates[-1] != 0:
+        candidates.append(0)
+    tried: dict[int, float] = {}
+    for k in candidates:
+        tried[k] = all_out_from(k)
+    best = min(tried, key=lambda k: (tried[k], -k))
+    for k in range(max(0, best - stride + 1), min(n, best + stride - 1) + 1):
+        if k not in tried:
+            tried[k] = all_out_from(k)
+    best = min(tried, key=lambda k: (tried[k], -k))
+    return best, tried[best]
+
+
+def _objective(model: RunModel, v0: float, w0: float, counter: list[int], progress: Progress | None,
+               budget: int):
+    n = model.n_segments
+
+    def fun(x: list[float]) -> tuple[float, list[float]]:
+        J, ga, gb, _ = objective_and_gradient(model, x[:n], x[n:], v0, w0, RUNUP_WEIGHT)
+        counter[0] += 1
+        if progress is not None:
+            progress(min(1.0, counter[0] / budget))
+        return J, ga + gb
+
+    return fun
+
+
+def optimise_run(
+    model: RunModel,
+    start_speed_mps: float,
+    start_balance_j: float,
+    *,
+    max_evaluations: int = 400,
+    warm_start: tuple[list[float], list[float]] | None = None,
+    extra_starts: bool = True,
+    progress: Progress | None = None,
+) -> OptimisedRun:
+    """Optimise the power of every segment of ``model`` from the given state.
+
+    ``warm_start``: (spend, ease) controls to start from as well (e.g. the
+    previous re-plan); ``extra_starts``: also start from "hold CP" (costs a
+    second run of the optimiser; used for the pre-ride plan).
+    """
+    check_finite_state(start_speed_mps, start_balance_j)
+    n = model.n_segments
+    k_go, _ = final_effort_search(model, start_speed_mps, start_balance_j)
+    starts: list[list[float]] = [[0.0] * k_go + [1.0] * (n - k_go) + [0.0] * n]
+    if warm_start is not None:
+        spend, ease = warm_start
+        if len(spend) != n or len(ease) != n:
+            raise PlanError(f"warm start has {len(spend)} controls for {n} segments")
+        starts.append(list(spend) + list(ease))
+    if extra_starts:
+        starts.append([0.0] * (2 * n))
+    counter = [0]
+    budget = max_evaluations * len(starts)
+    fun = _objective(model, start_speed_mps, start_balance_j, counter, progress, budget)
+    best_x: list[float] | None = None
+    best_f = float("inf")
+    for x0 in starts:
+        x, f, _ = spg_minimise(fun, x0, max_evaluations=max_evaluations)
+        if f < best_f:
+            best_x, best_f = x, f
+    chosen = best_x if best_x is not None else starts[0]
+    spend = chosen[:n]
+    ease = chosen[n:]
+    _, _, _, powers = objective_and_gradient(
+        model, spend, ease, start_speed_mps, start_balance_j, RUNUP_WEIGHT, want_trajectory=True
+    )
+    traj = simulate(model, start_speed_mps=start_speed_mps, start_balance_j=start_balance_j,
+                    powers_w=powers)
+    if progress is not None:
+        progress(1.0)
+    return OptimisedRun(
+        powers_w=tuple(traj.power_w),
+        trajectory=traj,
+        objective_s=best_f,
+        trap_time_s=trap_time_of(model, traj),
+        spend=tuple(spend),
+        ease=tuple(ease),
+        evaluations=counter[0],
+    )
