@@ -25,6 +25,7 @@ import threading
 import time
 from typing import Any, Callable
 
+from livecoach.errors import ConfigError
 from livecoach.pipeline.state import LiveState, Notice
 from livecoach.telemetry.frame import notice_frame, pack_frame, state_frame
 
@@ -49,7 +50,7 @@ class RadioSink:
         open_port: Callable[[], Any] | None = None,
     ) -> None:
         if not rate_hz > 0.0:
-            raise ValueError(f"rate_hz must be > 0, got {rate_hz}")
+            raise ConfigError(f"radio rate_hz = {rate_hz}: expected a number of frames per second > 0")
         self.port = port
         self.baud = baud
         self.period_s = 1.0 / rate_hz
@@ -202,8 +203,9 @@ class RadioSink:
                 notice = self._notices.popleft()
             except IndexError:
                 break
-            if self._send(pack_frame(notice_frame(notice, self._next_seq()))):
-                self.notices_sent += 1
+            if not self._send(pack_frame(notice_frame(notice, self._next_seq()))):
+                return max(next_state_t, now)  # stalled or lost: try again next tick
+            self.notices_sent += 1
         if now >= next_state_t:
             version, state = self._version, self._latest
             if state is not None and version != self._sent_version:

@@ -147,6 +147,8 @@ def run(args: argparse.Namespace) -> int:
     station = GroundStation(args.port, args.baud, record=args.record)
     try:
         station.open()
+        print(f"ground: listening on {args.port} at {args.baud} baud"
+              + (f", recording to {args.record}" if args.record else ""), file=sys.stderr, flush=True)
         live_view = sys.stdout.isatty() and not args.json and not args.plain
         deadline = time.monotonic() + args.duration if args.duration else None
         live = None
