@@ -59,6 +59,7 @@ TICKS_PER_S = 1_000_000
 _NUMBER = re.compile(r"-?[0-9]+(\.[0-9]+)?\Z")
 _WORD = re.compile(r"[A-Za-z0-9_.\-]{1,32}\Z")
 _UINT = re.compile(r"[0-9]{1,10}\Z")
+_HEX4 = re.compile(rb"[0-9A-F]{4}\Z")
 
 
 def crc16_ccitt_false(data: bytes) -> int:
@@ -111,6 +112,7 @@ _AIR_KEYS = {
     "t": ("temperature_c", -60.0, 80.0, 2),
     "rh": ("relative_humidity_pct", 0.0, 100.0, 1),
 }
+_AIR_INDEX = {key: (i, lo, hi) for i, (key, (_, lo, hi, _d)) in enumerate(_AIR_KEYS.items())}
 _KINDS = {"hlo": ("fw",), "air": tuple(_AIR_KEYS), "whl": ("n", "e"), "btn": ("id",)}
 
 
@@ -152,7 +154,7 @@ def decode_mcu_line(line: bytes) -> McuRecord:
     if cut < 0:
         raise PayloadError(MALFORMED, "no ' #<crc>' checksum at the end of the line")
     body, crc_text = line[:cut], line[cut + 2:]
-    if len(crc_text) != 4 or not all(c in b"0123456789ABCDEF" for c in crc_text):
+    if not _HEX4.match(crc_text):
         raise PayloadError(MALFORMED, f"checksum {crc_text!r} is not four upper-case hex digits")
     want = int(crc_text, 16)
     got = crc16_ccitt_false(body)
@@ -173,16 +175,16 @@ def decode_mcu_line(line: bytes) -> McuRecord:
     if kind == "air":
         if not f:
             raise PayloadError(MALFORMED, "an air record needs at least one of as, p, t, rh")
-        values: dict[str, float] = {}
+        values: list[float | None] = [None, None, None, None]
         for key, raw in f.items():
-            attr, lo, hi, _ = _AIR_KEYS[key]
+            index, lo, hi = _AIR_INDEX[key]
             if not _NUMBER.match(raw):
                 raise PayloadError(MALFORMED, f"air {key}='{raw}' is not a decimal number")
             v = float(raw)
             if not lo <= v <= hi:
                 raise PayloadError(OUT_OF_RANGE, f"air {key}={raw} is outside {lo:g}..{hi:g}")
-            values[attr] = v
-        return McuAir(t_us, **values)
+            values[index] = v
+        return McuAir(t_us, *values)
     if kind == "whl":
         if "n" not in f or "e" not in f:
             raise PayloadError(MALFORMED, "a whl record needs both n and e")

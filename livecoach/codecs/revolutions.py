@@ -167,6 +167,16 @@ class RevolutionTracker:
         return self._last_ticks is not None
 
     @property
+    def revolutions(self) -> int | None:
+        """Unwrapped cumulative revolutions of the latest reading (None before the first)."""
+        return self._revs.value if self._last_ticks is not None else None
+
+    @property
+    def event_time_s(self) -> float | None:
+        """Unwrapped sensor time of the latest revolution event, s (None before the first)."""
+        return self._last_event_time_s if self._last_ticks is not None else None
+
+    @property
     def last_event_receive_t_s(self) -> float | None:
         """Receive time (s) at which the latest revolution event was first seen."""
         return self._event_receive_t_s if self._last_ticks is not None else None

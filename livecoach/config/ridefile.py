@@ -255,6 +255,7 @@ OPTIONAL_SECTIONS: dict[str, type | str] = {
     "display": DisplayConfig,
     "audio": AudioConfig,
     "estimator": "livecoach.estimate.settings:EstimatorConfig",
+    "decode": "livecoach.pipeline.decode:DecodeConfig",
     "web": "livecoach.web.config:WebConfig",
     "radio": "livecoach.telemetry.config:RadioConfig",
 }
