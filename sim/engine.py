@@ -118,7 +118,8 @@ class Simulation:
 
     def _target_w(self, t_s: float, distance_m: float) -> float:
         course = self.scenario.ride.course
-        if self.rider.stand_down_after_trap and distance_m >= course.trap_exit_m:
+        if (self.rider.stand_down_after_trap and distance_m >= course.trap_exit_m
+                and self.scenario.run.until == "runout"):
             return 0.0
         if self.rider.follows_coach and self.target_w is not None:
             return self.target_w
@@ -138,6 +139,7 @@ class Simulation:
         info.temperature_c = self.air.temperature_c
         info.relative_humidity_pct = self.air.relative_humidity_pct
         end_distance = course.trap_exit_m + sc.run.runout_m
+        soak = sc.run.until == "time_limit"
         tick_dt = 1.0 / sc.run.tick_hz if sc.run.tick_hz > 0.0 else math.inf
         next_tick = tick_dt
         m_eff = veh.effective_mass_kg
@@ -150,6 +152,7 @@ class Simulation:
             t0 = k * dt
             x0, v0 = st.distance_m, st.speed_mps
             target = self._target_w(t0, x0)
+            w_bal0 = self.rider.w_bal_j
             power = self.rider.power_for_step(target, dt)
             wind = self.wind.headwind_mps
             cda, crr = self.cda_at(x0), self.crr_at(x0)
@@ -161,7 +164,7 @@ class Simulation:
                 w = st.work_j
                 truth.add((
                     t0, x0, v0, st.accel_mps2, power, target, cda, crr, wind, v0 + wind, rho, elev,
-                    self.course.grade(x0), self.rider.w_bal_j, w[0], w[1], w[2], w[3], w[4], w[5],
+                    self.course.grade(x0), w_bal0, w[0], w[1], w[2], w[3], w[4], w[5],
                     0.5 * m_eff * v0 * v0,
                 ))
             rk4_step(st, dt, power, self.course, rho, veh, wind, truth is not None)
@@ -201,11 +204,11 @@ class Simulation:
                 summ.w_prime_at_trap_exit_j = self.rider.w_bal_j
                 if summ.trap_entry_t_s is not None:
                     summ.trap_speed_mps = course.trap_m / (summ.trap_exit_t_s - summ.trap_entry_t_s)
-            if st.distance_m >= end_distance:
+            if st.distance_m >= end_distance and not soak:
                 reason = "run-out done"
             elif t1 >= sc.run.max_time_s - 1e-9:
                 reason = "time limit"
-            elif t1 > 5.0 and st.speed_mps < _STOPPED_MPS and power == 0.0 and st.distance_m > 1.0:
+            elif not soak and t1 > 5.0 and st.speed_mps < _STOPPED_MPS and power == 0.0 and st.distance_m > 1.0:
                 reason = "stopped"
             if reason:
                 break

@@ -68,6 +68,11 @@ class RunSettings:
     start_utc: str = setting(
         "2031-05-17T05:48:00", doc="UTC date and time of the start, for the GPS sentences"
     )
+    until: str = setting(
+        "runout", doc="end the run after the run-out ('runout') or only at max_time_s ('time_limit', "
+        "for soak runs: the rider rides on past the course, which continues flat)",
+        choices=("runout", "time_limit"),
+    )
     tick_hz: float = setting(
         0.0, doc="rate of empty 'tick' events (0: none)", unit="Hz", lo=0.0, hi=100.0
     )
