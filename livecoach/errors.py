@@ -49,6 +49,10 @@ class CsvImportError(LivecoachError):
     """A CSV ride file is missing a required column or has bad values."""
 
 
+class ExportError(LivecoachError):
+    """An export (e.g. a recording written out as CSV) cannot be written."""
+
+
 class FrameError(DecodeError):
     """A radio telemetry frame is corrupt: bad COBS stuffing, bad CRC, wrong
     length, unknown version or type (the ground station counts and skips it)."""
