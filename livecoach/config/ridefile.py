@@ -258,6 +258,8 @@ OPTIONAL_SECTIONS: dict[str, type | str] = {
     "decode": "livecoach.pipeline.decode:DecodeConfig",
     "web": "livecoach.web.config:WebConfig",
     "radio": "livecoach.telemetry.config:RadioConfig",
+    "coach": "livecoach.coach.settings:CoachConfig",
+    "course_rules": "livecoach.plan.checks:CourseRulesConfig",
 }
 
 
