@@ -258,6 +258,7 @@ OPTIONAL_SECTIONS: dict[str, type | str] = {
     "decode": "livecoach.pipeline.decode:DecodeConfig",
     "web": "livecoach.web.config:WebConfig",
     "radio": "livecoach.telemetry.config:RadioConfig",
+    "check": "livecoach.setup_check.settings:CheckConfig",
     "coach": "livecoach.coach.settings:CoachConfig",
     "course_rules": "livecoach.plan.checks:CourseRulesConfig",
 }
@@ -284,7 +285,13 @@ def section_class(name: str) -> type:
         import importlib
 
         module_name, _, attr = cls.partition(":")
-        cls = getattr(importlib.import_module(module_name), attr)
+        try:
+            cls = getattr(importlib.import_module(module_name), attr)
+        except (ImportError, AttributeError) as exc:
+            raise ConfigError(
+                f"ride-file section [{name}] is registered as '{OPTIONAL_SECTIONS[name]}' "
+                f"but cannot be loaded: {exc}"
+            ) from None
         OPTIONAL_SECTIONS[name] = cls
     return cls
 
