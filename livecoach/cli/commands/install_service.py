@@ -99,7 +99,10 @@ def run(args: argparse.Namespace) -> int:
         role, sep, device = item.partition("=")
         if not sep or not device:
             raise ConfigError(f"--serial {item}: expected ROLE=DEVICE, e.g. gps=/dev/ttyUSB0")
-        rules.append(inst.device_rule(role.strip(), device.strip(), inst.udev_properties(device.strip())))
+        role, device = role.strip(), device.strip()
+        if role not in inst.SERIAL_ROLES:
+            raise ConfigError(f"--serial {item}: role '{role}' is not one of {', '.join(inst.SERIAL_ROLES)}")
+        rules.append(inst.device_rule(role, device, inst.udev_properties(device)))
     rules_text = inst.render_rules(rules)
     steps += inst.install(prefix=Path(args.prefix), unit_text=unit, rules_text=rules_text,
                           data_dir=data_dir, user=user, dry_run=args.dry_run, enable=not args.no_enable)
