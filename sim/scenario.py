@@ -529,3 +529,36 @@ def _check_start_utc(text: str, source: str) -> None:
         raise ConfigError(
             f"{source}: [scenario] start_utc = {text!r}: expected YYYY-MM-DDTHH:MM:SS"
         ) from None
+
+
+def truth_ride(scenario: Scenario) -> RideConfig:
+    """The ride file as it would be if the team knew the truth: the true
+    vehicle, rider, air and steady wind (the survey error and the gusts aside),
+    with the starting drag area and rolling resistance. For the optimum
+    against which a run is judged."""
+    from dataclasses import replace
+
+    ride = scenario.ride
+    w = scenario.weather
+    vehicle = replace(
+        ride.vehicle, cda_m2=scenario.true_cda_m2, crr=scenario.true_crr, mass_kg=scenario.true_mass_kg,
+        wheel_circumference_m=scenario.true_circumference_m,
+        wheel_inertia_kgm2=scenario.true_wheel_inertia_kgm2,
+        drivetrain_efficiency=scenario.true_efficiency,
+    )
+    rider = replace(ride.rider, cp_w=scenario.true_cp_w, w_prime_j=scenario.true_w_prime_j,
+                    pmax_w=scenario.true_pmax_w)
+    air = ride.air
+    changes: dict[str, Any] = {}
+    if w.temperature_c is not None:
+        changes["temperature_c"] = w.temperature_c
+    if w.relative_humidity_pct is not None:
+        changes["relative_humidity_pct"] = w.relative_humidity_pct
+    if w.pressure_pa is not None:
+        changes["pressure_pa"] = w.pressure_pa
+        changes["altitude_m"] = None
+    if w.headwind_mps is not None:
+        changes["headwind_mps"] = w.headwind_mps
+    if changes:
+        air = replace(air, **changes)
+    return replace(ride, vehicle=vehicle, rider=rider, air=air)

@@ -33,6 +33,8 @@ class WheelSensor:
         self.next_report_s = self.interval_s * setup.uniform()
         # The magnet is somewhere on the wheel at the start.
         self.next_event_m = circumference_m * setup.uniform()
+        #: Distance of the first revolution event after the start, m.
+        self.phase_m = self.next_event_m
         self.revolutions = int(setup.integers(0, 2_000_000))
         self.last_event_s = -1.0 * setup.uniform()
         self.mcu = mcu
