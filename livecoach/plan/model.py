@@ -379,6 +379,7 @@ def objective_and_gradient(
     start_balance_j: float,
     runup_weight: float = 0.0,
     want_trajectory: bool = False,
+    min_speed_mps: float = 0.0,
 ) -> tuple[float, list[float], list[float], list[float] | None]:
     """Trap time (s) + ``runup_weight`` × run-up time, and its exact gradient.
 
@@ -396,6 +397,10 @@ def objective_and_gradient(
     the net power with the exact model. Returns (objective, d/d spend,
     d/d ease, net powers per segment if ``want_trajectory`` else None).
     Values outside 0..1 are clipped, with zero slope.
+
+    ``min_speed_mps`` > 0 adds a penalty of (½v_min² - E)² s·kg²/J² at every
+    node where the speed is below ``min_speed_mps`` after the vehicle first
+    reached it, so the optimiser keeps the vehicle rideable over rises.
     """
     n = model.n_segments
     M = model.effective_mass_kg
@@ -409,6 +414,8 @@ def objective_and_gradient(
     ds_l, fc_l, trap_l = model.seg_ds_m, model.seg_force_n, model.seg_in_trap
     tape = [None] * n
     powers = [0.0] * n if want_trajectory else None
+    e_ride = 0.5 * min_speed_mps * min_speed_mps
+    going = start_speed_mps >= min_speed_mps > 0.0
     v0 = start_speed_mps
     E0 = 0.5 * v0 * v0
     w0 = start_balance_j
@@ -435,9 +442,15 @@ def objective_and_gradient(
         vp1 = v1p if v1p > vmin else vmin
         a1 = (eta * p / vp1 - ca * va1 * abs(va1) - fc - b1 * v1p) / M
         E1 = E0 + 0.5 * (a0 + a1) * ds
+        gpen = 0.0
+        if going and E1 < e_ride:
+            total += (e_ride - E1) ** 2
+            gpen = -2.0 * (e_ride - E1)
         clip_1 = E1 < _E_STALL
         if clip_1:
             E1 = _E_STALL
+        if min_speed_mps > 0.0 and E1 >= e_ride:
+            going = True
         v1 = math.sqrt(2.0 * E1)
         dt = 2.0 * ds / (v0 + v1)
         wm = w0 - ac * room * dt
@@ -457,7 +470,7 @@ def objective_and_gradient(
         if powers is not None:
             powers[k] = p
         tape[k] = (v0, w0, wpos, room, a, ac, b, bc, p, va0, vp0, clip_p, v1p, va1, vp1, clip_1,
-                   v1, dt, wm, ey, rec, wclip, weight)
+                   v1, dt, wm, ey, rec, wclip, weight, gpen)
         v0, E0, w0 = v1, E1, w1
     g_spend = [0.0] * n
     g_ease = [0.0] * n
@@ -465,7 +478,7 @@ def objective_and_gradient(
     gw1 = 0.0
     for k in range(n - 1, -1, -1):
         (v0, w0, wpos, room, a, ac, b, bc, p, va0, vp0, clip_p, v1p, va1, vp1, clip_1,
-         v1, dt, wm, ey, rec, wclip, weight) = tape[k]
+         v1, dt, wm, ey, rec, wclip, weight, gpen) = tape[k]
         ds = ds_l[k]
         if wclip:
             gw1 = 0.0
@@ -490,6 +503,7 @@ def objective_and_gradient(
         gE1t = gE1 + gsum / v1
         if clip_1:
             gE1t = 0.0
+        gE1t += gpen
         gE0 = gE1t
         ga0 = 0.5 * ds * gE1t
         ga1 = 0.5 * ds * gE1t

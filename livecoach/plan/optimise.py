@@ -118,11 +118,12 @@ def final_effort_search(
 
 
 def _objective(model: RunModel, v0: float, w0: float, counter: list[int], progress: Progress | None,
-               budget: int):
+               budget: int, min_speed_mps: float):
     n = model.n_segments
 
     def fun(x: list[float]) -> tuple[float, list[float]]:
-        J, ga, gb, _ = objective_and_gradient(model, x[:n], x[n:], v0, w0, RUNUP_WEIGHT)
+        J, ga, gb, _ = objective_and_gradient(model, x[:n], x[n:], v0, w0, RUNUP_WEIGHT,
+                                              min_speed_mps=min_speed_mps)
         counter[0] += 1
         if progress is not None:
             progress(min(1.0, counter[0] / budget))
@@ -139,13 +140,15 @@ def optimise_run(
     max_evaluations: int = 400,
     warm_start: tuple[list[float], list[float]] | None = None,
     extra_starts: bool = True,
+    min_speed_mps: float = 0.0,
     progress: Progress | None = None,
 ) -> OptimisedRun:
     """Optimise the power of every segment of ``model`` from the given state.
 
     ``warm_start``: (spend, ease) controls to start from as well (e.g. the
     previous re-plan); ``extra_starts``: also start from "hold CP" (costs a
-    second run of the optimiser; used for the pre-ride plan).
+    second run of the optimiser; used for the pre-ride plan); ``min_speed_mps``:
+    penalise speeds below this once reached (see ``objective_and_gradient``).
     """
     check_finite_state(start_speed_mps, start_balance_j)
     n = model.n_segments
@@ -160,9 +163,11 @@ def optimise_run(
         starts.append([0.0] * (2 * n))
     counter = [0]
     budget = max_evaluations * len(starts)
-    fun = _objective(model, start_speed_mps, start_balance_j, counter, progress, budget)
+    fun = _objective(model, start_speed_mps, start_balance_j, counter, progress, budget, min_speed_mps)
     best_x: list[float] | None = None
     best_f = float("inf")
+    if min_speed_mps > 0.0:
+        starts.append([1.0] * n + [0.0] * n)  # all-out: the best chance over a rise
     for x0 in starts:
         x, f, _ = spg_minimise(fun, x0, max_evaluations=max_evaluations)
         if f < best_f:
@@ -171,7 +176,8 @@ def optimise_run(
     spend = chosen[:n]
     ease = chosen[n:]
     _, _, _, powers = objective_and_gradient(
-        model, spend, ease, start_speed_mps, start_balance_j, RUNUP_WEIGHT, want_trajectory=True
+        model, spend, ease, start_speed_mps, start_balance_j, RUNUP_WEIGHT, want_trajectory=True,
+        min_speed_mps=min_speed_mps,
     )
     traj = simulate(model, start_speed_mps=start_speed_mps, start_balance_j=start_balance_j,
                     powers_w=powers)

@@ -33,6 +33,11 @@ from livecoach.plan.plan import Plan, PlanBasis, final_effort_start_m
 
 Progress = Callable[[float], None]
 
+#: Slowest speed a plan may ask for once the vehicle has got going, m/s. A
+#: faired two-wheeler needs speed to stay upright; below a walking pace it
+#: falls over (common practice; about 3 m/s is a livecoach choice).
+MIN_RIDEABLE_SPEED_MPS = 3.0
+
 
 def _plan_from_run(model: RunModel, ride, run, basis: PlanBasis, note: str = "") -> Plan:
     traj = run.trajectory
@@ -48,6 +53,20 @@ def _plan_from_run(model: RunModel, ride, run, basis: PlanBasis, note: str = "")
         final_effort_m=fe,
         note=note,
     )
+
+
+def _check_rideable(traj, min_speed_mps: float, trap_exit_m: float) -> None:
+    """PlanError if the plan's speed drops below ``min_speed_mps`` after first reaching it."""
+    got_going = False
+    for d, v in zip(traj.distance_m, traj.speed_mps):
+        if v >= min_speed_mps:
+            got_going = True
+        elif got_going:
+            raise PlanError(
+                f"cannot reach the trap within the budget: even the best plan slows to {v:.1f} m/s "
+                f"at {d:.0f} m (below the rideable {min_speed_mps:g} m/s); the run-up climbs too "
+                f"much for this rider and vehicle before the trap at {trap_exit_m:.0f} m"
+            )
 
 
 def _check_reachable(model: RunModel, start_speed_mps: float) -> None:
@@ -71,6 +90,7 @@ def make_plan(
     headwind_mps: float | None = None,
     spacing_m: float = DEFAULT_SPACING_M,
     max_evaluations: int = 400,
+    min_speed_mps: float = MIN_RIDEABLE_SPEED_MPS,
     progress: Progress | None = None,
 ) -> Plan:
     """The optimal run-up plan for ``ride`` (a RideConfig).
@@ -78,7 +98,8 @@ def make_plan(
     ``cda_m2``/``crr``/``air_density_kgpm3``/``headwind_mps`` override the
     ride file's values (m², -, kg/m³, m/s). ``progress(fraction)`` is called
     as the optimiser works (for a progress bar). Raises :class:`PlanError`
-    when no plan can reach the trap.
+    when no plan can reach the trap, or when even the best plan slows below
+    ``min_speed_mps`` after getting going (a rise it cannot ride over).
     """
     model = build_run_model(
         ride, cda_m2=cda_m2, crr=crr, air_density_kgpm3=air_density_kgpm3,
@@ -86,9 +107,9 @@ def make_plan(
     )
     v0 = ride.course.start_speed_mps
     _check_reachable(model, v0)
-    run = optimise_run(model, v0, model.w_prime_j, max_evaluations=max_evaluations, progress=progress)
-    if run.trajectory.stalled_at_m is not None:  # the optimiser never prefers this; be explicit
-        raise PlanError(f"the best plan found stops at {run.trajectory.stalled_at_m:.0f} m")
+    run = optimise_run(model, v0, model.w_prime_j, max_evaluations=max_evaluations,
+                       min_speed_mps=min_speed_mps, progress=progress)
+    _check_rideable(run.trajectory, max(min_speed_mps, 0.5), model.trap_exit_m)
     basis = PlanBasis.from_ride(ride, cda_m2=model.cda_m2, crr=model.crr,
                                 air_density_kgpm3=model.air_density_kgpm3,
                                 headwind_mps=model.headwind_mps)
