@@ -99,6 +99,7 @@ class Pipeline:
         self._airspeed_mps: float | None = None
         self._wbal_j: float = ride.rider.w_prime_j
         self._coach_out: Any = None
+        self._last_distance_m: float | None = None
         self._alarms: list[str] = []
         self._warnings: list[str] = []
         self._state: LiveState = LiveState(t_s=0.0, w_prime_balance_j=self._wbal_j,
@@ -182,7 +183,12 @@ class Pipeline:
 
         # Trap timing and phase from the distance track.
         if distance_m is not None:
-            crossed = self.trap.feed(t_s, distance_m)
+            # Time the trap only on updates of the distance itself: an event
+            # from another sensor carries the old distance at a later time.
+            crossed = None
+            if distance_m != self._last_distance_m:
+                self._last_distance_m = distance_m
+                crossed = self.trap.feed(t_s, distance_m)
             new_phase = self._phase
             if self._phase == PHASE_WAITING and speed_mps is not None and speed_mps > ROLLING_SPEED_MPS:
                 new_phase = PHASE_RUNUP
