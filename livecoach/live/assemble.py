@@ -1,0 +1,125 @@
+"""Build the live loop's sinks from a ride file (the imperative shell's wiring).
+
+Used by ``livecoach ride`` (real sensors) and by the simulator's demo, so the
+two run the very same sinks: recording, the rider's display, audio cues, the
+crew web page and radio telemetry.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable
+
+from livecoach.config.ridefile import RideConfig
+
+
+@dataclass
+class SinkSet:
+    """The sinks of one run, and the recorder behind the recording sink."""
+
+    sinks: list[Any] = field(default_factory=list)
+    recorder: Any = None
+    recording_path: Path | None = None
+    web: Any = None
+    warnings: list[str] = field(default_factory=list)
+
+    def close(self, reason: str = "closed") -> None:
+        if self.recorder is not None:
+            self.recorder.close(reason=reason)
+
+
+def recording_folder(ride: RideConfig, override: str | Path | None = None) -> Path:
+    """Where recordings go: ``override``, else [recording] directory relative to the ride file."""
+    if override is not None:
+        return Path(override)
+    folder = Path(ride.recording.directory)
+    if not folder.is_absolute() and ride.source not in ("<memory>", "<ride file>") and Path(ride.source).exists():
+        folder = Path(ride.source).resolve().parent / folder
+    return folder
+
+
+def build_sinks(
+    ride: RideConfig,
+    plan: Any = None,
+    *,
+    record: bool = True,
+    recording_dir: str | Path | None = None,
+    label: str = "ride",
+    display: bool = True,
+    display_console: Any = None,
+    audio: bool | None = None,
+    web: bool | None = None,
+    radio: bool | None = None,
+    clock: Callable[[], float] = time.monotonic,
+    wall_clock: Callable[[], float] = time.time,
+    header_extra: dict[str, Any] | None = None,
+) -> SinkSet:
+    """Sinks for a run. ``audio``/``web``/``radio`` None means "as the ride file says"
+    ([audio] muted, [web] enabled, [radio] enabled); True/False force them."""
+    out = SinkSet()
+    warn = out.warnings.append
+
+    if record:
+        from livecoach.recording import Recorder, RecordingSink, header_for_ride, recording_path
+
+        folder = recording_folder(ride, recording_dir)
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            warn(f"RECORDING OFF: cannot create {folder}: {exc}")
+        else:
+            start_wall = wall_clock()
+            path = recording_path(folder, start_wall, label)
+            header = header_for_ride(ride, start_wall_time_unix_s=start_wall,
+                                     start_monotonic_s=clock(), extra=header_extra)
+            rec = Recorder(path, header, flush_interval_s=ride.recording.flush_interval_s,
+                           on_warning=warn)
+            if rec.start():
+                out.recorder = rec
+                out.recording_path = path
+                out.sinks.append(RecordingSink(rec))
+
+    if display:
+        from livecoach.sinks.display import DisplaySink
+
+        cfg = ride.section("display")
+        out.sinks.append(DisplaySink(display_console, refresh_hz=cfg.refresh_hz,
+                                     speed_unit=cfg.speed_unit, screen=display_console is None))
+
+    acfg = ride.section("audio")
+    if audio if audio is not None else not acfg.muted:
+        from livecoach.sinks.audio import AudioCueSink, find_player
+
+        player = None if acfg.player == "none" else find_player(acfg.player)
+        if player is None:
+            warn("audio cues: no sound player found (aplay, paplay or sox play); cues are silent")
+        out.sinks.append(AudioCueSink(
+            player=player, muted=acfg.muted, voice=acfg.voice, min_interval_s=acfg.min_interval_s,
+            repeat_after_s=acfg.repeat_after_s, max_age_s=acfg.max_age_s, volume_pct=acfg.volume_pct,
+            speech_voice=acfg.speech_voice, words_per_minute=acfg.words_per_minute,
+        ))
+
+    wcfg = ride.section("web")
+    if web if web is not None else wcfg.enabled:
+        from livecoach.sinks.web import CrewWebSink
+
+        out.web = CrewWebSink(ride, plan)
+        out.sinks.append(out.web)
+
+    rcfg = ride.section("radio")
+    if radio if radio is not None else rcfg.enabled:
+        if not rcfg.port:
+            warn("radio telemetry: [radio] port is empty; no telemetry")
+        else:
+            from livecoach.telemetry.sender import RadioSink
+
+            out.sinks.append(RadioSink(rcfg.port, rcfg.baud, rcfg.rate_hz))
+    return out
+
+
+def print_warnings(sinks: SinkSet, stream: Any = sys.stderr) -> None:
+    for w in sinks.warnings:
+        print(f"livecoach: {w}", file=stream)
