@@ -76,7 +76,9 @@ def test_stale_speed_is_never_drawn_as_current():
     state = make_state(
         speed_stale=True,
         sensors=(SensorHealth("ble.csc", True, True, 6.2, 100, 0, 1, 6.2),
-                 SensorHealth("ble.cycling_power", True, False, 0.2, 100, 0, 0, 0.0)),
+                 SensorHealth("ble.cycling_power", True, False, 0.2, 100, 0, 0, 0.0),
+                 # A current channel's age must not be shown as the stale speed's age.
+                 SensorHealth("serial.gps", True, False, 0.1, 100, 0, 0, 0.0)),
     )
     for width, height in ((50, 16), (100, 30)):
         text = render_text(state, width, height)

@@ -168,14 +168,15 @@ def _health(state: LiveState, channel: str) -> SensorHealth | None:
 
 
 def _speed_age_s(state: LiveState) -> float | None:
+    """Age of the newest speed value among the speed channels that are stale, s."""
     ages = [h.age_s for h in state.sensors
-            if h.channel in ("ble.csc", "serial.gps", "csv") and h.age_s is not None]
+            if h.channel in ("ble.csc", "serial.gps", "csv") and h.stale and h.age_s is not None]
     return min(ages) if ages else None
 
 
 def _power_age_s(state: LiveState) -> float | None:
     h = _health(state, "ble.cycling_power") or _health(state, "csv")
-    return h.age_s if h is not None else None
+    return h.age_s if (h is not None and h.stale) else None
 
 
 def _bar(fraction: float, width: int, fill: str = "█", empty: str = "░") -> str:
