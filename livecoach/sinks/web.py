@@ -345,4 +345,4 @@ class CrewWebSink:
     async def _close_clients(self, app: web.Application) -> None:
         for client in list(self._clients):
             with contextlib.suppress(Exception):
-                await client.ws.close(code=1001, message=b"livecoach stopped")
+                await asyncio.wait_for(client.ws.close(code=1001, message=b"livecoach stopped"), 2.0)
