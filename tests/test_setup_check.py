@@ -436,3 +436,49 @@ def test_listen_reports_a_failing_and_a_silent_source():
     assert not by["gps"].connected and "No such file" in by["gps"].error
     assert not by["speed"].connected and by["speed"].error == "link down"
     assert not by["power"].connected and by["power"].error == "no adapter"
+
+
+def test_gather_facts_reads_a_real_gps_through_the_project_sources(tmp_path):
+    """`livecoach check` end to end on real probes: the GPS on a pseudo-terminal via pyserial."""
+    import threading
+
+    from livecoach.setup_check.gather import gather_facts
+
+    master, slave = os.openpty()
+    data = _ride_dict(check={"listen_s": 1.5})
+    data["sensors"].update(power_address="", speed_address="", heart_rate_address="",
+                           gps_port=os.ttyname(slave))
+    from sim.tomlwrite import dumps
+
+    ride_path = tmp_path / "ride.toml"
+    ride_path.write_text(dumps(data))
+    stop = threading.Event()
+
+    def feed():
+        while not stop.is_set():
+            now = time.time()
+            sod = now % 86400.0
+            date = time.strftime("%d%m%y", time.gmtime(now))
+            rmc = nmea.encode_rmc(utc_time=nmea.utc_time_text(sod), utc_date=date, latitude_deg=10.5,
+                                  longitude_deg=-20.25, speed_mps=0.0, course_deg=0.0)
+            gga = nmea.encode_gga(utc_time=nmea.utc_time_text(sod), latitude_deg=10.5,
+                                  longitude_deg=-20.25, altitude_m=1400.0, satellites=9, hdop=0.9)
+            os.write(master, rmc + b"\r\n" + gga + b"\r\n")
+            stop.wait(0.1)
+
+    writer = threading.Thread(target=feed, daemon=True)
+    writer.start()
+    try:
+        outcome = gather_facts(ride_path, plan_path=tmp_path / "none.csv")
+    finally:
+        stop.set()
+        writer.join(timeout=5)
+        os.close(master)
+        os.close(slave)
+    rows = {r.name.split(" ")[0]: r for r in outcome.results}
+    assert rows["GPS"].status == GO and "9 satellites" in rows["GPS"].detail
+    assert rows["serial"].status == GO  # the pty is a real tty this user can open
+    # The wall clock agrees with the GPS time the feeder took from it.
+    assert rows["clock"].status == GO
+    # No power meter configured, no plan: no-go overall.
+    assert rows["sensors"].status == NO_GO and not is_go(outcome.results)

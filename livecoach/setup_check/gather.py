@@ -46,23 +46,23 @@ def _relative(base: Path, path: str) -> Path:
 
 
 def build_sources(ride: Any, specs: tuple[SensorSpec, ...]) -> tuple[list[tuple[SensorSpec, Any]], dict]:
-    """The live loop's real sources for the configured sensors: (pairs, failed reasons).
+    """The live loop's own sources for the configured sensors: ((spec, source) pairs,
+    {spec: reason} for those that could not be built).
 
-    Uses :func:`livecoach.sources.sources_for_check`-style construction from
-    :mod:`livecoach.sources` (BLE through bleak, serial through pyserial).
+    Uses :func:`livecoach.sources.sources_from_ride` (BLE through bleak with the
+    ride file's allow-list, serial through pyserial) and pairs each source
+    with its sensor by channel.
     """
+    from livecoach.errors import LivecoachError
+    from livecoach.sources import sources_from_ride
+
     try:
-        from livecoach import sources as src  # type: ignore[attr-defined]
-    except ImportError as exc:
-        reason = f"sensor sources unavailable: {exc}"
-        return [], {spec: reason for spec in specs}
-    pairs: list[tuple[SensorSpec, Any]] = []
-    failed: dict[SensorSpec, str] = {}
-    for spec in specs:
-        try:
-            pairs.append((spec, src.source_for_channel(ride, spec.channel)))
-        except Exception as exc:  # any failure to build one source is that sensor's fact
-            failed[spec] = f"{type(exc).__name__}: {exc}"
+        sources = sources_from_ride(ride)
+    except (LivecoachError, ImportError, OSError) as exc:
+        return [], {spec: f"sources cannot be set up: {exc}" for spec in specs}
+    by_channel = {getattr(src, "channel", None): src for src in sources}
+    pairs = [(spec, by_channel[spec.channel]) for spec in specs if spec.channel in by_channel]
+    failed = {spec: "no source for this sensor" for spec in specs if spec.channel not in by_channel}
     return pairs, failed
 
 

@@ -63,6 +63,7 @@ async def listen(
                 by_channel[ev.channel].append(ev)
     finally:
         await _stop_all(sources, tasks)
+    source_of = dict(sources)
     out: list[SensorTraffic] = []
     for spec, _ in sources:
         events = tuple(by_channel[spec.channel])
@@ -73,7 +74,8 @@ async def listen(
             error = f"{type(exc).__name__}: {exc}"
         connected = bool(events) or spec.channel in link_up
         if not connected and error is None:
-            error = link_errors.get(spec.channel, "no link within the listening window")
+            error = (getattr(source_of[spec], "last_error", None)
+                     or link_errors.get(spec.channel, "no link within the listening window"))
         out.append(SensorTraffic(spec, connected, events, window_s, error if not connected else None))
     for spec, reason in (failed or {}).items():
         out.append(SensorTraffic(spec, False, (), window_s, reason))
