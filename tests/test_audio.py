@@ -275,3 +275,38 @@ def test_real_espeak_render_and_full_clip(tmp_path):
     expected = pattern_duration_s(TONE_PATTERNS["hold"]) + 0.12 + duration_s
     assert wav_duration_s(clip) == pytest.approx(expected, abs=0.01)
     assert clips.speech_errors == 0
+
+
+def test_sink_from_ride_file_settings(tmp_path):
+    from livecoach.cli.commands.init import example_ride_text
+    from livecoach.config.ridefile import parse_ride_text
+
+    text = example_ride_text() + '\n[audio]\nmuted = true\nmin_interval_s = 4.5\nplayer = "none"\n' \
+        '\n[display]\nspeed_unit = "mph"\n'
+    ride = parse_ride_text(text, "ride.toml")
+    sink = AudioCueSink.from_ride(ride, cache_dir=tmp_path)
+    assert sink.player is None and sink.muted and sink.scheduler.min_interval_s == 4.5
+    assert sink.speed_unit == "mph"
+    with pytest.raises(ConfigError, match=r"\[audio\] player = 'kazoo'"):
+        parse_ride_text(example_ride_text() + '\n[audio]\nplayer = "kazoo"\n', "ride.toml")
+
+
+def test_sink_to_file_player_with_words(tmp_path):
+    """The whole path: notice -> scheduler -> clip (tone, and words when espeak-ng is
+    installed) -> a player that writes WAV files."""
+    player = FilePlayer(tmp_path / "played")
+    sink = AudioCueSink(player=player, min_interval_s=0.0, cache_dir=tmp_path / "cache")
+    sink.start_thread()
+    try:
+        sink.on_notice(Notice(0.0, "phase", "phase done", {"phase": "done", "trap_speed_mps": 30.5}))
+        _wait(lambda: len(sink.history) == 1, timeout_s=30.0)
+    finally:
+        sink.stop_thread()
+    assert sink.errors == 0, sink.last_error
+    (wav,) = player.played
+    tone_s = pattern_duration_s(TONE_PATTERNS["result"])
+    if shutil.which("espeak-ng"):
+        # "trap 109.8 kilometres per hour" spoken after the tone: well over a second more.
+        assert wav_duration_s(wav) > tone_s + 1.0
+    else:
+        assert wav_duration_s(wav) == pytest.approx(tone_s, abs=1e-3)
