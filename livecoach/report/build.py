@@ -130,6 +130,11 @@ def build_report(
     ``warnings``: extra notes (e.g. the reader's damage report).
     """
     series = series_from_states(states)
+    out = Path(out_dir)
+    try:  # fail before the figures are drawn, not after
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise ReportError(f"cannot write the report into {out}: {exc}") from None
     entry_m, exit_m = ride.course.trap_entry_m, ride.course.trap_exit_m
     unit = ride.section("display").speed_unit
     k = {"km/h": 3.6, "mph": 1.0 / 0.44704, "m/s": 1.0}[unit]
@@ -260,9 +265,7 @@ def build_report(
         "organisers' decisions; official times come from the event's own timing.</p>",
         "</main></body></html>",
     ]
-    out = Path(out_dir)
     try:
-        out.mkdir(parents=True, exist_ok=True)
         path = out / REPORT_NAME
         tmp = path.with_name(path.name + ".part")
         tmp.write_text("\n".join(p for p in parts if p), encoding="utf-8")
