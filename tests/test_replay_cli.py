@@ -270,3 +270,34 @@ def test_marker_events_only(tmp_path):
     rec.close()
     result = replay_recording(path)
     assert result.events == 20 and result.summary["rejected_samples"] == 0
+
+
+def test_live_ride_recording_with_a_plan_replays_the_same_cues(sim_run, tmp_path):
+    import asyncio
+
+    from livecoach.config.ridefile import load_ride_file
+    from livecoach.plan import make_plan
+    from livecoach.recording.session import open_ride_recording
+
+    ride_file = tmp_path / "ride.toml"
+    ride_file.write_text(sim_run.scenario.ride.text, encoding="utf-8")
+    ride = load_ride_file(ride_file)
+    plan = make_plan(ride)
+    warnings: list[str] = []
+    sink = open_ride_recording(ride, plan=plan, on_warning=warnings.append,
+                               clock=lambda: 0.0, wall_clock=lambda: 1_900_000_000.0)
+    # The file goes to [recording] directory, relative to the ride file, named by the UTC start.
+    assert sink.recorder.path == tmp_path / "recordings" / "ride-20300317-174640.lcrec"
+    loop = LiveLoop(ride, plan, sinks=[sink])
+    asyncio.run(sink.start())
+    for ev in sim_run.events:
+        loop.handle(ev)
+    asyncio.run(sink.stop())
+    assert warnings == [] and sink.recorder.status == "closed"
+
+    reader = RecordingReader(sink.recorder.path)
+    assert "plan_csv" in reader.header.extra
+    stored = [json.loads(o.value_json) for o in reader.outputs() if o.kind == "notice"]
+    assert any(n["kind"] == "cue" for n in stored)            # coaching was recorded ...
+    result = replay_recording(sink.recorder.path)               # ... and comes out again
+    assert result.output_check == "reproduced" and result.outputs_compared == result.outputs_stored

@@ -9,6 +9,8 @@
 * :mod:`livecoach.recording.outputs` — which outputs are stored, the live
   :class:`RecordingSink`, and the replay-reproduces-outputs check.
 * :mod:`livecoach.recording.replay` — feed a recording through the pipeline.
+* :mod:`livecoach.recording.session` — :func:`open_ride_recording`: the sink a
+  live ride plugs into :class:`livecoach.live.loop.LiveLoop`.
 """
 
 from livecoach.recording.format import (

@@ -75,6 +75,8 @@ class RecordingSink:
 
     def on_event(self, event: Any) -> None:
         self.recorder.append(event)
+        if event.channel == "tick":     # the live loop's periodic tick: run the stall watchdog
+            self.recorder.check()
 
     def on_state(self, state: Any) -> None:
         out = self.tap.from_state(state)
