@@ -45,7 +45,8 @@ from livecoach.physics.power_balance import GRAVITY_MPS2, MIN_PROPULSION_SPEED_M
 DEFAULT_SPACING_M = 25.0
 #: Below this speed after the start the vehicle counts as stopped (plan infeasible), m/s.
 STALL_SPEED_MPS = 0.5
-_E_STALL = 0.5 * STALL_SPEED_MPS**2
+E_STALL_J_PER_KG = 0.5 * STALL_SPEED_MPS**2
+_E_STALL = E_STALL_J_PER_KG
 
 
 @dataclass(frozen=True, slots=True)

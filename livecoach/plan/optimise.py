@@ -20,16 +20,18 @@ which only decides between plans of equal trap time (faster run-up wins).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Callable
 
 from livecoach.errors import PlanError
+from livecoach.physics.power_balance import MIN_PROPULSION_SPEED_MPS
 from livecoach.plan.model import (
+    E_STALL_J_PER_KG,
     RunModel,
     Trajectory,
     check_finite_state,
     objective_and_gradient,
-    segment_step,
     simulate,
 )
 from livecoach.plan.spg import spg_minimise
@@ -69,44 +71,88 @@ def trap_time_of(model: RunModel, traj: Trajectory) -> float:
 
 
 def final_effort_search(
-    model: RunModel, start_speed_mps: float, start_balance_j: float, *, max_candidates: int = 40
+    model: RunModel,
+    start_speed_mps: float,
+    start_balance_j: float,
+    *,
+    max_candidates: int = 40,
+    around: int | None = None,
+    window: int = 8,
 ) -> tuple[int, float]:
     """Best node to start an all-out effort after holding CP: (segment index, objective s).
 
     Index ``n_segments`` means "hold CP to the end". Objective as in the
-    module doc.
+    module doc. ``around``: only try segment indices within ``window`` of this
+    one (and "never"), e.g. near the previous re-plan's choice.
     """
     check_finite_state(start_speed_mps, start_balance_j)
     n = model.n_segments
-    cp, kk = model.cp_w, model.decline_rate_per_j
+    cp, wp, kk = model.cp_w, model.w_prime_j, model.decline_rate_per_j
     trap = model.seg_in_trap
+    ds_l, fc_l = model.seg_ds_m, model.seg_force_n
+    M = model.effective_mass_kg
+    eta = model.efficiency
+    ca = model.air_coef_kgpm
+    hw = model.headwind_mps
+    b1 = model.bearing_slope_nspm
+    vmin = MIN_PROPULSION_SPEED_MPS
+    e_stall = E_STALL_J_PER_KG
+    sqrt = math.sqrt
+    expm1 = math.expm1
+
+    def run(k0: int, v: float, E: float, w: float, all_out: bool, record: bool) -> float:
+        """Cost from segment k0 to the end (same arithmetic as segment_step)."""
+        c = 0.0
+        for j in range(k0, n):
+            p = cp + kk * (w if w > 0.0 else 0.0) if all_out else cp
+            ds = ds_l[j]
+            fc = fc_l[j]
+            va = v + hw
+            a0 = (eta * p / (v if v > vmin else vmin) - ca * va * abs(va) - fc - b1 * v) / M
+            E1p = E + a0 * ds
+            if E1p < e_stall:
+                E1p = e_stall
+            v1p = sqrt(2.0 * E1p)
+            va = v1p + hw
+            a1 = (eta * p / (v1p if v1p > vmin else vmin) - ca * va * abs(va) - fc - b1 * v1p) / M
+            E1 = E + 0.5 * (a0 + a1) * ds
+            if E1 < e_stall:
+                E1 = e_stall
+            v1 = sqrt(2.0 * E1)
+            dt = 2.0 * ds / (v + v1)
+            if p >= cp:
+                w = w - (p - cp) * dt
+            elif w < wp:
+                w = w - (wp - w) * expm1(-(cp - p) * dt / wp)
+            if w < 0.0:
+                w = 0.0
+            c += dt if trap[j] else RUNUP_WEIGHT * dt
+            v, E = v1, E1
+            if record:
+                states.append((v, E, w))
+                cost_before.append(c)
+        return c
+
     # Hold trajectory: states at every node and the cost accumulated so far.
     states = [(start_speed_mps, 0.5 * start_speed_mps**2, start_balance_j)]
     cost_before = [0.0]
-    v, E, w = states[0]
-    cost = 0.0
-    for k in range(n):
-        v, E, w, dt, _ = segment_step(model, k, v, E, w, cp)
-        cost += dt if trap[k] else RUNUP_WEIGHT * dt
-        states.append((v, E, w))
-        cost_before.append(cost)
+    run(0, *states[0], False, True)
 
     def all_out_from(k: int) -> float:
         if k >= n:
             return cost_before[n]
-        v, E, w = states[k]
-        c = cost_before[k]
-        for j in range(k, n):
-            p = cp + kk * (w if w > 0.0 else 0.0)
-            v, E, w, dt, _ = segment_step(model, j, v, E, w, p)
-            c += dt if trap[j] else RUNUP_WEIGHT * dt
-        return c
+        return cost_before[k] + run(k, *states[k], True, False)
 
+    tried: dict[int, float] = {n: cost_before[n]}
+    if around is not None:
+        for k in range(max(0, around - window), min(n, around + window + 1)):
+            tried[k] = all_out_from(k)
+        best = min(tried, key=lambda k: (tried[k], -k))
+        return best, tried[best]
     stride = max(1, n // max_candidates)
     candidates = list(range(n, -1, -stride))
     if candidates[-1] != 0:
         candidates.append(0)
-    tried: dict[int, float] = {}
     for k in candidates:
         tried[k] = all_out_from(k)
     best = min(tried, key=lambda k: (tried[k], -k))
@@ -152,12 +198,17 @@ def optimise_run(
     """
     check_finite_state(start_speed_mps, start_balance_j)
     n = model.n_segments
-    k_go, _ = final_effort_search(model, start_speed_mps, start_balance_j)
-    starts: list[list[float]] = [[0.0] * k_go + [1.0] * (n - k_go) + [0.0] * n]
+    around = None
     if warm_start is not None:
         spend, ease = warm_start
         if len(spend) != n or len(ease) != n:
             raise PlanError(f"warm start has {len(spend)} controls for {n} segments")
+        around = n
+        while around > 0 and spend[around - 1] > 0.999:
+            around -= 1
+    k_go, _ = final_effort_search(model, start_speed_mps, start_balance_j, around=around)
+    starts: list[list[float]] = [[0.0] * k_go + [1.0] * (n - k_go) + [0.0] * n]
+    if warm_start is not None:
         starts.append(list(spend) + list(ease))
     if extra_starts:
         starts.append([0.0] * (2 * n))
