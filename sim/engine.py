@@ -20,7 +20,7 @@ deterministic for a given scenario and seed.
 from __future__ import annotations
 
 import math
-from typing import Any, Iterator
+from typing import Any, Callable, Iterator
 
 from livecoach.stream.events import CH_TICK, RawEvent
 from sim.environment import Air, Wind, true_course
@@ -57,11 +57,19 @@ def _steps_lookup(start_value: float, steps: list[list[float]]):
 
 class Simulation:
     """One simulated run. Iterate :meth:`events` once; read :attr:`truth`,
-    :attr:`summary` and :attr:`faults` afterwards (or during)."""
+    :attr:`summary` and :attr:`faults` afterwards (or during).
+
+    Closed loop, either way: ``controller.feed(event)`` is called with every
+    event and its result's ``.state.target_power_w`` is the rider's target;
+    or ``target_fn()`` is asked for the target at every step (when the
+    module runs elsewhere, e.g. in the live loop).
+    """
 
     def __init__(self, scenario: Scenario, seed: int | None = None, controller: Any = None,
-                 keep_truth: bool = True, truth_every: int = 1) -> None:
+                 keep_truth: bool = True, truth_every: int = 1,
+                 target_fn: Callable[[], float | None] | None = None) -> None:
         self.scenario = scenario
+        self.target_fn = target_fn
         self.seed = scenario.seed if seed is None else int(seed)
         self.controller = controller
         self.truth = TruthLog(truth_every) if keep_truth else None
@@ -121,6 +129,10 @@ class Simulation:
         if (self.rider.stand_down_after_trap and distance_m >= course.trap_exit_m
                 and self.scenario.run.until == "runout"):
             return 0.0
+        if self.target_fn is not None:
+            target = self.target_fn()
+            if target is not None and math.isfinite(target):
+                self.target_w = float(target)
         if self.rider.follows_coach and self.target_w is not None:
             return self.target_w
         return self.rider.profile.target_w(t_s, distance_m)

@@ -74,7 +74,8 @@ class RunSettings:
         choices=("runout", "time_limit"),
     )
     tick_hz: float = setting(
-        0.0, doc="rate of empty 'tick' events (0: none)", unit="Hz", lo=0.0, hi=100.0
+        4.0, doc="rate of empty 'tick' events, as the live loop sends them (every 0.25 s); 0: none",
+        unit="Hz", lo=0.0, hi=100.0,
     )
 
 
