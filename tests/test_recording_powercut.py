@@ -64,7 +64,7 @@ def test_sigkill_at_random_moments_loses_at_most_one_second(tmp_path):
     rng = random.Random(20240603)
     for trial in range(6):
         path = tmp_path / f"kill{trial}.lcrec"
-        delay = rng.uniform(0.05, 2.0)
+        delay = rng.uniform(0.05, 1.5)
         t_kill, code = _record_and_kill(path, delay, flush_interval_s=0.5)
         assert code == -signal.SIGKILL
         reader = RecordingReader(path)            # the header survived

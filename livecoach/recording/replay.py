@@ -109,6 +109,11 @@ def replay_recording(
     header = reader.header
     own_ride = ride is None
     if own_ride:
+        if not header.ride_text.strip():
+            from livecoach.errors import ConfigError
+
+            raise ConfigError(f"{path}: the recording's header holds no ride file; "
+                              "give one with --config RIDE.toml")
         ride = header.ride_config(f"{path} (ride file in the header)")
     if plan is None:
         plan = plan_from_header(header, ride)
