@@ -54,7 +54,7 @@ def _mpl():
 def _png(fig) -> bytes:
     buf = io.BytesIO()
     # No software tag (it carries a web address) and no timestamp: reproducible bytes.
-    fig.savefig(buf, format="png", dpi=DPI, bbox_inches="tight", metadata={"Software": None})
+    fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None})
     import matplotlib.pyplot as plt
 
     plt.close(fig)
@@ -90,7 +90,7 @@ def speed_vs_distance(s: Series, plan: Any, entry_m: float, exit_m: float, unit:
     """Measured speed against distance, with the plan's speed."""
     plt = _mpl()
     k = _speed_factor(unit)
-    fig, ax = plt.subplots(figsize=(FIG_W_IN, 3.4))
+    fig, ax = plt.subplots(figsize=(FIG_W_IN, 3.4), layout="constrained")
     _trap_zone(ax, entry_m, exit_m)
     planned = _plan_arrays(plan, "speed_mps")
     if planned is not None:
@@ -114,7 +114,7 @@ def speed_vs_distance(s: Series, plan: Any, entry_m: float, exit_m: float, unit:
 def power_vs_distance(s: Series, plan: Any, entry_m: float, exit_m: float, cp_w: float) -> bytes:
     """Measured crank power and the target power against distance."""
     plt = _mpl()
-    fig, ax = plt.subplots(figsize=(FIG_W_IN, 3.2))
+    fig, ax = plt.subplots(figsize=(FIG_W_IN, 3.2), layout="constrained")
     _trap_zone(ax, entry_m, exit_m)
     planned = _plan_arrays(plan, "power_w")
     if planned is not None:
@@ -146,7 +146,7 @@ def drag_convergence(s: Series, summary: dict, prior_cda: float, prior_crr: floa
                      alarms: Sequence[tuple[float, str]]) -> bytes:
     """CdA and Crr estimates over time with +-2 sigma bands, the batch fit and the prior."""
     plt = _mpl()
-    fig, (a1, a2) = plt.subplots(2, 1, figsize=(FIG_W_IN, 5.0), sharex=True)
+    fig, (a1, a2) = plt.subplots(2, 1, figsize=(FIG_W_IN, 5.0), sharex=True, layout="constrained")
     for ax, val, sd, batch, prior, name, unit in (
         (a1, s.cda_m2, s.cda_sd_m2, summary.get("batch_cda_m2"), prior_cda, "CdA", "m²"),
         (a2, s.crr, s.crr_sd, summary.get("batch_crr"), prior_crr, "Crr", "-"),
@@ -177,7 +177,7 @@ def drag_convergence(s: Series, summary: dict, prior_cda: float, prior_crr: floa
 def residual_plot(r: Residuals, alarms: Sequence[tuple[float, str]], t_end_s: float) -> bytes:
     """Power-balance residuals per window and the drag-change alarms."""
     plt = _mpl()
-    fig, ax = plt.subplots(figsize=(FIG_W_IN, 3.0))
+    fig, ax = plt.subplots(figsize=(FIG_W_IN, 3.0), layout="constrained")
     ax.axhline(0.0, color=C_FIT, lw=0.8)
     if r.t_s.size:
         ax.bar(r.t_s, r.residual_w, width=max(0.5, 0.8 * float(np.median(np.diff(r.t_s))) if r.t_s.size > 1 else 1.0),
@@ -200,7 +200,7 @@ def residual_plot(r: Residuals, alarms: Sequence[tuple[float, str]], t_end_s: fl
 def w_prime_plot(s: Series, plan: Any, w_prime_j: float, entry_m: float, exit_m: float) -> bytes:
     """W' balance against distance, with the plan's."""
     plt = _mpl()
-    fig, ax = plt.subplots(figsize=(FIG_W_IN, 3.0))
+    fig, ax = plt.subplots(figsize=(FIG_W_IN, 3.0), layout="constrained")
     _trap_zone(ax, entry_m, exit_m)
     planned = _plan_arrays(plan, "w_prime_balance_j")
     if planned is not None:
@@ -223,7 +223,7 @@ def sensor_plot(timelines: Sequence[ChannelTimeline], t_end_s: float, labels: di
     """Per sensor channel: when it was current, stale or down."""
     plt = _mpl()
     n = max(1, len(timelines))
-    fig, ax = plt.subplots(figsize=(FIG_W_IN, 0.9 + 0.42 * n))
+    fig, ax = plt.subplots(figsize=(FIG_W_IN, 0.9 + 0.42 * n), layout="constrained")
     for k, tl in enumerate(timelines):
         y = n - 1 - k
         ax.broken_barh([(0.0, t_end_s)], (y - 0.3, 0.6), color="#d6efe9")
@@ -249,7 +249,7 @@ def trap_plot(s: Series, trap: TrapResult, entry_m: float, exit_m: float, unit: 
     lo = trap.entry_s - 10.0
     hi = (trap.exit_s if trap.exit_s is not None else float(s.t_s[-1])) + 5.0
     m = (s.t_s >= lo) & (s.t_s <= hi)
-    fig, ax = plt.subplots(figsize=(FIG_W_IN, 2.8))
+    fig, ax = plt.subplots(figsize=(FIG_W_IN, 2.8), layout="constrained")
     ax.axvspan(trap.entry_s, trap.exit_s if trap.exit_s is not None else hi, color=C_TRAP, zorder=0)
     ax.plot(s.t_s[m], np.where(s.speed_stale[m], np.nan, s.speed_mps[m] * k), color=C_MEASURED, lw=1.8,
             label="measured speed")
