@@ -301,3 +301,47 @@ def test_live_ride_recording_with_a_plan_replays_the_same_cues(sim_run, tmp_path
     assert any(n["kind"] == "cue" for n in stored)            # coaching was recorded ...
     result = replay_recording(sink.recorder.path)               # ... and comes out again
     assert result.output_check == "reproduced" and result.outputs_compared == result.outputs_stored
+
+
+def test_disk_full_mid_ride_stops_recording_never_the_coaching(sim_run, tmp_path):
+    import errno
+    import os
+    import time
+
+    class FullDisk:
+        """A real file on a "card" that fills up after 40 kB (ENOSPC, as write(2) reports it)."""
+
+        def __init__(self, path):
+            self.real, self.room = open(path, "xb", buffering=0), 40_000
+
+        def write(self, data):
+            if self.room <= 0:
+                raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+            n = self.real.write(data[:self.room])
+            self.room -= n
+            return n
+
+        def fileno(self):
+            return self.real.fileno()
+
+        def close(self):
+            self.real.close()
+
+    ride = sim_run.scenario.ride
+    warnings: list[str] = []
+    rec = Recorder(tmp_path / "full.lcrec", header_for_ride(ride, start_wall_time_unix_s=1.9e9,
+                                                             start_monotonic_s=0.0),
+                   flush_interval_s=0.05, on_warning=warnings.append, opener=FullDisk)
+    assert rec.start()
+    with_rec = LiveLoop(ride, None, sinks=[RecordingSink(rec)])
+    without = LiveLoop(ride, None)
+    for i, ev in enumerate(sim_run.events):
+        a, b = with_rec.handle(ev), without.handle(ev)
+        assert a.state == b.state and a.notices == b.notices      # coaching unchanged throughout
+        if i % 100 == 0:
+            time.sleep(0.06)                                      # let the writer reach the full disk
+    rec.close()
+    assert rec.status == "failed" and any("disk is full" in w for w in warnings)
+    assert with_rec.stats.sink_errors == {}                        # the sink never raised into the loop
+    got = list(RecordingReader(tmp_path / "full.lcrec").events())
+    assert got == sim_run.events[:rec.events_written] and 0 < len(got) < len(sim_run.events)
