@@ -200,7 +200,7 @@ def test_sink_plays_one_at_a_time_with_interval(tmp_path):
 def test_on_notice_never_waits_for_the_player(tmp_path):
     gate = threading.Event()
     player = RecordingPlayer(play_s=0.0, block=gate)
-    sink = AudioCueSink(player=player, voice=False, min_interval_s=0.0, cache_dir=tmp_path)
+    sink = AudioCueSink(player=player, voice=False, min_interval_s=0.0, max_age_s=60.0, cache_dir=tmp_path)
     sink.start_thread()
     try:
         sink.on_notice(_cue("hold", "first"))
