@@ -240,7 +240,7 @@ def test_live_view_shows_values_and_flags_stale_ones():
     console.print(_view(station))
     text = console.export_text()
     assert "15.03 m/s  54.1 km/h" in text and "(stale)" not in text.split("speed")[1].split("\n")[0]
-    assert "serial.gps STALE" in text and "ble.cycling_power ok" in text
+    assert "GPS STALE" in text and "power meter ok" in text
     assert "alarm: drag changed" in text and "frames 2  lost 0  corrupt 0" in text
     clock[0] += 10.0  # no frame for 10 s: every value is shown as old
     console = Console(width=110, record=True, color_system=None)

@@ -272,7 +272,7 @@ class CrewWebSink:
         return self._json(self._ride_json)
 
     async def _api_state(self, request: web.Request) -> web.Response:
-        return self._json(dumps(self.feed.snapshot()))
+        return self._json(self.feed.snapshot_json())
 
     async def _api_status(self, request: web.Request) -> web.Response:
         return self._json(dumps(self.stats()))
@@ -284,9 +284,9 @@ class CrewWebSink:
         client = _Client(ws, request, self.feed.cursor, request.remote or "?")
         self._clients.add(client)
         self.clients_total += 1
-        hello = {"type": "hello", "plan_version": self.plan_version,
-                 "rate_hz": 1.0 / self.period_s, **self.feed.snapshot()}
-        sender = asyncio.get_running_loop().create_task(self._sender(client, dumps(hello)))
+        hello = self.feed.snapshot_json({"type": "hello", "plan_version": self.plan_version,
+                                         "rate_hz": 1.0 / self.period_s})
+        sender = asyncio.get_running_loop().create_task(self._sender(client, hello))
         try:
             async for msg in ws:  # read-only: whatever a page sends is ignored
                 if msg.type == WSMsgType.ERROR:
@@ -334,10 +334,9 @@ class CrewWebSink:
             key = client.cursor
             text = cache.get(key)
             if text is None:
-                delta, _ = self.feed.delta(client.cursor)
-                delta["type"] = "update"
-                delta["plan_version"] = self.plan_version
-                text = cache[key] = dumps(delta)
+                text, _ = self.feed.delta_json(
+                    client.cursor, {"type": "update", "plan_version": self.plan_version})
+                cache[key] = text
             client.cursor = self.feed.cursor
             if not await self._send(client, text):
                 return

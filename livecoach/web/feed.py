@@ -17,6 +17,7 @@ No wall clock here: time is the module clock of the states.
 from __future__ import annotations
 
 import collections
+import itertools
 import json
 import math
 from typing import Any
@@ -56,8 +57,14 @@ def _plain(value: Any) -> Any:
 
 
 def dumps(obj: Any) -> str:
-    """Compact JSON with non-finite numbers as null."""
-    return json.dumps(_plain(obj), separators=(",", ":"), allow_nan=False)
+    """Compact JSON with non-finite numbers as null.
+
+    Payloads built by this module are clean already and go straight to the
+    C encoder; anything else is cleaned first."""
+    try:
+        return json.dumps(obj, separators=(",", ":"), allow_nan=False)
+    except (TypeError, ValueError):
+        return json.dumps(_plain(obj), separators=(",", ":"), allow_nan=False)
 
 
 def state_payload(state: LiveState) -> dict[str, Any]:
@@ -137,18 +144,25 @@ def ride_payload(ride: Any) -> dict[str, Any]:
 
 
 class CrewFeed:
-    """Newest state, chart history and notice log with per-reader cursors."""
+    """Newest state, chart history and notice log with per-reader cursors.
+
+    Points and notices are kept as their JSON text (made once, when they
+    arrive), so a page's first message with the whole history is a string
+    join, not thousands of float conversions on the live loop.
+    """
 
     def __init__(self, point_every_s: float = 0.5, max_points: int = 4000,
                  max_notices: int = 200) -> None:
         self.point_every_s = point_every_s
         self.state: LiveState | None = None
         self.version = 0
-        self._points: collections.deque[list] = collections.deque(maxlen=max_points)
+        self._points: collections.deque[str] = collections.deque(maxlen=max_points)
         self._points_end = 0
-        self._notices: collections.deque[dict] = collections.deque(maxlen=max_notices)
+        self._notices: collections.deque[str] = collections.deque(maxlen=max_notices)
         self._notices_end = 0
         self._next_point_t_s = -math.inf
+        self._state_payload: dict[str, Any] | None = None
+        self._state_version = -1
 
     def add_state(self, state: LiveState) -> None:
         """Take a state (O(1)); a chart point is kept every ``point_every_s`` of module time."""
@@ -156,12 +170,12 @@ class CrewFeed:
         self.version += 1
         t = state.t_s
         if t >= self._next_point_t_s or t < self._next_point_t_s - 10 * self.point_every_s:
-            self._points.append(state_point(state))
+            self._points.append(dumps(state_point(state)))
             self._points_end += 1
             self._next_point_t_s = t + self.point_every_s
 
     def add_notice(self, notice: Notice) -> None:
-        self._notices.append(notice_payload(notice))
+        self._notices.append(dumps(notice_payload(notice)))
         self._notices_end += 1
         self.version += 1
 
@@ -170,28 +184,47 @@ class CrewFeed:
         """(points seen, notices seen) after everything so far."""
         return self._points_end, self._notices_end
 
-    def _since(self, ring: collections.deque, end: int, seen: int) -> list:
+    def state_payload(self) -> dict[str, Any] | None:
+        """The newest state's payload (computed once per state)."""
+        if self.state is None:
+            return None
+        if self._state_version != self.version or self._state_payload is None:
+            self._state_payload = state_payload(self.state)
+            self._state_version = self.version
+        return self._state_payload
+
+    @staticmethod
+    def _since(ring: collections.deque, end: int, seen: int) -> list[str]:
         start = end - len(ring)
         k = max(seen, start) - start
         if k >= len(ring):
             return []
-        return list(ring)[k:] if k else list(ring)
+        return list(itertools.islice(ring, k, None))
+
+    def _message(self, head: dict[str, Any], points: Any, notices: Any) -> str:
+        text = dumps({**head, "state": self.state_payload()})
+        return (text[:-1] + ',"points":[' + ",".join(points) + '],"notices":['
+                + ",".join(notices) + "]}")
+
+    def snapshot_json(self, head: dict[str, Any] | None = None) -> str:
+        """JSON text of everything kept (newest state, all points and notices),
+        with the keys of ``head`` added."""
+        return self._message({**(head or {}), "fields": list(POINT_FIELDS)}, self._points,
+                             self._notices)
+
+    def delta_json(self, cursor: tuple[int, int],
+                   head: dict[str, Any] | None = None) -> tuple[str, tuple[int, int]]:
+        """JSON text of what a reader at ``cursor`` has not seen, and its new cursor."""
+        seen_points, seen_notices = cursor
+        text = self._message(head or {}, self._since(self._points, self._points_end, seen_points),
+                             self._since(self._notices, self._notices_end, seen_notices))
+        return text, self.cursor
 
     def snapshot(self) -> dict[str, Any]:
-        """Everything kept: the newest state, all points and notices."""
-        return {
-            "state": state_payload(self.state) if self.state is not None else None,
-            "fields": list(POINT_FIELDS),
-            "points": list(self._points),
-            "notices": list(self._notices),
-        }
+        """:meth:`snapshot_json` as a dict."""
+        return json.loads(self.snapshot_json())
 
     def delta(self, cursor: tuple[int, int]) -> tuple[dict[str, Any], tuple[int, int]]:
-        """What a reader at ``cursor`` has not seen, and its new cursor."""
-        seen_points, seen_notices = cursor
-        out = {
-            "state": state_payload(self.state) if self.state is not None else None,
-            "points": self._since(self._points, self._points_end, seen_points),
-            "notices": self._since(self._notices, self._notices_end, seen_notices),
-        }
-        return out, self.cursor
+        """:meth:`delta_json` as a dict."""
+        text, new = self.delta_json(cursor)
+        return json.loads(text), new

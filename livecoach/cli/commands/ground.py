@@ -31,6 +31,17 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--frames", type=int, metavar="N", help="stop after N good frames")
 
 
+#: Short names of the sensor channels for the screen.
+SENSOR_LABELS = {
+    "ble.cycling_power": "power meter",
+    "ble.csc": "wheel speed",
+    "ble.heart_rate": "heart rate",
+    "serial.gps": "GPS",
+    "serial.mcu": "sensor board",
+    "csv": "CSV",
+}
+
+
 def _fmt(value: float | None, spec: str, unit: str = "") -> str:
     if value is None:
         return "--"
@@ -57,7 +68,7 @@ def plain_line(item: Any) -> str:
     cda = _fmt(item.cda_m2, ".4f")
     if item.cda_sd_m2 is not None and item.cda_m2 is not None:
         cda += f"+-{item.cda_sd_m2:.4f}"
-    stale = [h.channel for h in item.sensors if h.stale]
+    stale = [SENSOR_LABELS.get(h.channel, h.channel) for h in item.sensors if h.stale]
     parts = [
         f"#{item.seq:<5d} t {item.t_s:10.3f} s",
         f"{item.phase:<7}",
@@ -72,7 +83,7 @@ def plain_line(item: Any) -> str:
     if item.alarm_active:
         parts.append("DRAG ALARM")
     if stale:
-        parts.append("stale: " + ",".join(stale))
+        parts.append("stale: " + ", ".join(stale))
     return "  ".join(parts)
 
 
@@ -119,7 +130,8 @@ def _view(station: Any) -> Any:
         sensors = Text()
         for h in f.sensors:
             bad = h.stale or not h.link_up
-            label = f"{h.channel} {'STALE' if h.stale else ('down' if not h.link_up else 'ok')}"
+            name = SENSOR_LABELS.get(h.channel, h.channel)
+            label = f"{name} {'STALE' if h.stale else ('down' if not h.link_up else 'ok')}"
             sensors.append(label + "   ", style="bold red" if bad else "green")
         t.add_row("sensors", sensors)
     s = station.reader.stats
