@@ -79,7 +79,7 @@ class Replanner:
     def replan(self, distance_m: float, speed_mps: float, balance_j: float, cda_m2: float, crr: float,
                previous: Replan | None = None) -> Replan:
         """The optimal rest of the run from this state (see module doc)."""
-        model = self._model(cda_m2, crr).tail(distance_m)
+        model = self._model(cda_m2, crr).tail(distance_m, speed_mps)
         w0 = min(max(balance_j, 0.0), model.w_prime_j)
         warm = None
         if previous is not None:

@@ -46,6 +46,10 @@ DEFAULT_SPACING_M = 25.0
 #: Below this speed after the start the vehicle counts as stopped (plan infeasible), m/s.
 STALL_SPEED_MPS = 0.5
 E_STALL_J_PER_KG = 0.5 * STALL_SPEED_MPS**2
+#: Objective cost of easing below CP, s per second at the full ease (b = 1): a
+#: tie-breaker so a plan never asks the rider to stop pedalling for a gain of
+#: a few ten-thousandths of a second (riders and crews prefer steady power).
+EASE_WEIGHT = 5e-4
 _E_STALL = E_STALL_J_PER_KG
 
 
@@ -101,11 +105,13 @@ class RunModel:
         """Power available at a balance, W (Morton 1996)."""
         return self.cp_w + self.decline_rate_per_j * min(max(w_prime_balance_j, 0.0), self.w_prime_j)
 
-    def tail(self, from_distance_m: float) -> "RunModel":
+    def tail(self, from_distance_m: float, start_speed_mps: float | None = None) -> "RunModel":
         """The same problem from ``from_distance_m`` to the trap exit (for re-planning).
 
         The first segment runs from that distance to the next node (a
         fragment shorter than 0.5 m is merged with the following segment).
+        Below 10 m/s (``start_speed_mps``) the first metres are cut into short
+        segments as at a standing start (see :func:`grid_nodes_m`).
         """
         nodes = self.nodes_m
         d = min(max(from_distance_m, nodes[0]), nodes[-1])
@@ -116,34 +122,51 @@ class RunModel:
         at_entry = abs(nodes[first_end] - self.trap_entry_m) < 1e-9
         if nodes[first_end] - d < 0.5 and first_end < len(nodes) - 1 and not at_entry:
             first_end += 1
-        new_nodes = (d,) + nodes[first_end:]
+        new_nodes = [d]
+        if start_speed_mps is not None and start_speed_mps < 10.0:
+            step, x = 1.0, d + 1.0
+            spacing = max(self.seg_ds_m)
+            while x < nodes[first_end] - 0.25 and step < spacing:
+                new_nodes.append(x)
+                step *= 1.5
+                x += step
+        new_nodes.extend(nodes[first_end:])
         seg_grade: list[float] = []
         seg_force: list[float] = []
         seg_trap: list[bool] = []
         seg_ds: list[float] = []
-        # Merged first segment: grade from the elevation change over it.
-        rise = 0.0
-        for j in range(k, first_end):
-            a = max(nodes[j], d)
-            rise += self.seg_grade[j] * (nodes[j + 1] - a)
-        ds0 = nodes[first_end] - d
-        g0 = rise / ds0
-        seg_ds.append(ds0)
-        seg_grade.append(g0)
-        seg_force.append(self._const_force_n(g0))
-        seg_trap.append(d >= self.trap_entry_m - 1e-9)
+        for a, b in zip(new_nodes[:-1], new_nodes[1:]):
+            if b > nodes[first_end] + 1e-9:
+                break
+            g = self._mean_grade(a, b)
+            seg_ds.append(b - a)
+            seg_grade.append(g)
+            seg_force.append(self._const_force_n(g))
+            seg_trap.append(a >= self.trap_entry_m - 1e-9)
         seg_ds.extend(self.seg_ds_m[first_end:])
         seg_grade.extend(self.seg_grade[first_end:])
         seg_force.extend(self.seg_force_n[first_end:])
         seg_trap.extend(self.seg_in_trap[first_end:])
         return replace(
             self,
-            nodes_m=new_nodes,
+            nodes_m=tuple(new_nodes),
             seg_ds_m=tuple(seg_ds),
             seg_grade=tuple(seg_grade),
             seg_force_n=tuple(seg_force),
             seg_in_trap=tuple(seg_trap),
         )
+
+    def _mean_grade(self, a: float, b: float) -> float:
+        """Mean grade between distances a < b (m) from the per-segment grades."""
+        nodes = self.nodes_m
+        rise = 0.0
+        j = _segment_index(nodes, a)
+        while j < len(nodes) - 1 and nodes[j] < b:
+            lo, hi = max(nodes[j], a), min(nodes[j + 1], b)
+            if hi > lo:
+                rise += self.seg_grade[j] * (hi - lo)
+            j += 1
+        return rise / (b - a)
 
     def _const_force_n(self, grade: float) -> float:
         theta = math.atan(grade)
@@ -466,7 +489,7 @@ def objective_and_gradient(
         wclip = w1 < 0.0
         if wclip:
             w1 = 0.0
-        weight = 1.0 if trap_l[k] else runup_weight
+        weight = (1.0 if trap_l[k] else runup_weight) + EASE_WEIGHT * bc
         total += weight * dt
         if powers is not None:
             powers[k] = p
@@ -484,7 +507,7 @@ def objective_and_gradient(
         if wclip:
             gw1 = 0.0
         gdt = weight
-        gb = 0.0
+        gb = EASE_WEIGHT * dt
         if rec:
             # w1 = wp - (wp - wm) ey, ey = exp(-y), y = bc cp dt / wp
             gwm = gw1 * ey
