@@ -134,7 +134,8 @@ def test_speed_units(unit, expected):
     text = render_text(make_state(), 50, 16, speed_unit=unit)
     for row in digit_rows(expected):
         assert row in text
-    assert unit in text.splitlines()[1]
+    unit_line = next(line for line in text.splitlines() if digit_rows(expected)[0] in line)
+    assert line_ends_with_unit(unit_line, unit)
     assert SPEED_UNITS["mph"] == pytest.approx(1 / 0.44704)
 
 
@@ -257,3 +258,7 @@ def test_banner_expires_on_the_sink_clock():
     assert sink.current_banner().text.startswith("ble.csc stale")
     now[0] = 104.5
     assert sink.current_banner() is None
+
+
+def line_ends_with_unit(line: str, unit: str) -> bool:
+    return line.rstrip().endswith(unit)

@@ -548,16 +548,19 @@ def render_lines(
                  (2, _drag_line(c, "Crr", state.crr, state.crr_sd, ".5f")),
                  (2, _extras_line(c)), (1, _line()), (0, _sensor_line(c))]
     else:
-        body = [(0, _header(c))]
+        # Blank spacer lines (priorities 3..6) use spare rows on a taller screen;
+        # the highest number goes first when rows run short.
+        body = [(0, _header(c)), (3, _line())]
         body += [(0, t) for t in _speed_block(c, scale=1)]
-        body += [(0, _cue_line(c)), (0, _power_line(c)), (1, _power_bar_line(c, width)),
+        body += [(4, _line()), (0, _cue_line(c)), (6, _line()), (0, _power_line(c)),
+                 (1, _power_bar_line(c, width)),
                  (0, _trap_line(c)), (0, _wprime_line(c)),
                  (1, _drag_line(c, "CdA", state.cda_m2, state.cda_sd_m2, ".4f")),
                  (2, _drag_line(c, "Crr", state.crr, state.crr_sd, ".5f")),
-                 (0, _sensor_line(c))]
+                 (5, _line()), (0, _sensor_line(c))]
     if ban is not None:
         body.insert(1, (0, ban))
-    for level in (2, 1):
+    for level in (6, 5, 4, 3, 2, 1):
         if len(body) <= height:
             break
         body = [(p, t) for p, t in body if p < level]
