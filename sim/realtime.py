@@ -79,6 +79,29 @@ class LineOutput:
         else:
             self.dropped += 1
 
+    def pending(self) -> int:
+        """Bytes written but not yet read by the other side (pty), or 0."""
+        if self._slave_fd is None:
+            return 0
+        import fcntl
+        import struct
+        import termios
+
+        raw = fcntl.ioctl(self._slave_fd, termios.FIONREAD, b"\0\0\0\0")
+        return struct.unpack("i", raw)[0]
+
+    def drain(self, timeout_s: float) -> None:
+        """Give the reader up to ``timeout_s`` (wall time) to take the last bytes."""
+        if self._serial is not None:
+            try:
+                self._serial.flush()
+            except Exception:  # a port that went away: nothing left to drain
+                pass
+            return
+        deadline = time.monotonic() + timeout_s
+        while self.pending() > 0 and time.monotonic() < deadline:
+            time.sleep(0.01)
+
     def close(self) -> None:
         if self._serial is not None:
             self._serial.close()
@@ -111,12 +134,15 @@ def run_realtime(
     status_every_s: float = 10.0,
     clock: Callable[[], float] = time.monotonic,
     sleep: Callable[[float], None] = time.sleep,
+    linger_s: float = 1.0,
 ) -> RealtimeStats:
     """Play ``scenario`` in real time (``speed`` x) to the serial outputs.
 
     ``announce`` gets one line per port ("gps /dev/pts/5") before the first
     byte is sent, then a status line every ``status_every_s`` simulated
-    seconds. ``duration_s`` stops after that much simulated time.
+    seconds. ``duration_s`` stops after that much simulated time. At the end
+    the ports stay open up to ``linger_s`` (wall time) until a reader has
+    taken the bytes still buffered (closing a pty hangs up its reader).
     """
     if not speed > 0.0:
         raise SourceError(f"speed {speed!r} must be > 0")
@@ -160,6 +186,7 @@ def run_realtime(
         for ch, out in outputs.items():
             stats.lines[out.label] = out.lines
             stats.dropped[out.label] = out.dropped
+            out.drain(linger_s)
         return stats
     finally:
         for out in outputs.values():
