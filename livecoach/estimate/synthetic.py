@@ -40,6 +40,18 @@ class SyntheticRide:
     distance_m: float
     truth_t_s: list[float] = field(repr=False, default_factory=list)
     truth_speed_mps: list[float] = field(repr=False, default_factory=list)
+    truth_distance_m: list[float] = field(repr=False, default_factory=list)
+
+    def truth_at(self, t_s: float) -> tuple[float, float]:
+        """True (distance m, speed m/s) at ``t_s`` (s), linear between steps."""
+        import bisect
+
+        ts = self.truth_t_s
+        k = min(max(bisect.bisect_right(ts, t_s), 1), len(ts) - 1)
+        f = (t_s - ts[k - 1]) / (ts[k] - ts[k - 1])
+        d = self.truth_distance_m[k - 1] + f * (self.truth_distance_m[k] - self.truth_distance_m[k - 1])
+        v = self.truth_speed_mps[k - 1] + f * (self.truth_speed_mps[k] - self.truth_speed_mps[k - 1])
+        return d, v
 
 
 def default_power_profile(t_s: float) -> float:
@@ -239,4 +251,20 @@ def synthesize_ride(
                                      max(0.0, vs_l[i] + rng.gauss(0.0, gps_speed_sd_mps))))
             tn += 0.1
     samples.sort(key=lambda s: s.t_s)
-    return SyntheticRide(samples, cda_at, crr, t8, duration, d, ts_l, vs_l)
+    return SyntheticRide(samples, cda_at, crr, t8, duration, d, ts_l, vs_l, ds_l)
+
+
+def example_ride(estimator: dict[str, Any] | None = None, **sections: dict[str, Any]) -> Any:
+    """The packaged example ride file, with an ``[estimator]`` table and other
+    sections replaced or merged (for tests and benchmarks)."""
+    import tomllib
+
+    from livecoach.cli.commands.init import example_ride_text
+    from livecoach.config.ridefile import parse_ride_dict
+
+    data = tomllib.loads(example_ride_text())
+    for name, table in sections.items():
+        data.setdefault(name, {}).update(table)
+    if estimator:
+        data["estimator"] = dict(estimator)
+    return parse_ride_dict(data, "example ride file")
