@@ -31,16 +31,6 @@ class SinkSet:
             self.recorder.close(reason=reason)
 
 
-def recording_folder(ride: RideConfig, override: str | Path | None = None) -> Path:
-    """Where recordings go: ``override``, else [recording] directory relative to the ride file."""
-    if override is not None:
-        return Path(override)
-    folder = Path(ride.recording.directory)
-    if not folder.is_absolute() and ride.source not in ("<memory>", "<ride file>") and Path(ride.source).exists():
-        folder = Path(ride.source).resolve().parent / folder
-    return folder
-
-
 def build_sinks(
     ride: RideConfig,
     plan: Any = None,
@@ -55,32 +45,33 @@ def build_sinks(
     radio: bool | None = None,
     clock: Callable[[], float] = time.monotonic,
     wall_clock: Callable[[], float] = time.time,
-    header_extra: dict[str, Any] | None = None,
+    on_warning: Callable[[str], None] | None = None,
 ) -> SinkSet:
     """Sinks for a run. ``audio``/``web``/``radio`` None means "as the ride file says"
-    ([audio] muted, [web] enabled, [radio] enabled); True/False force them."""
+    ([audio] muted, [web] enabled, [radio] enabled); True/False force them.
+    ``on_warning`` receives the recorder's warnings (from its writer thread:
+    pass :meth:`LiveLoop.post_warning`, which is thread-safe); the recording
+    file is created when the loop starts its sinks."""
     out = SinkSet()
     warn = out.warnings.append
 
     if record:
-        from livecoach.recording import Recorder, RecordingSink, header_for_ride, recording_path
+        from livecoach.recording.session import open_ride_recording, recording_folder
 
-        folder = recording_folder(ride, recording_dir)
+        folder = Path(recording_dir) if recording_dir is not None else recording_folder(ride)
         try:
             folder.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
             warn(f"RECORDING OFF: cannot create {folder}: {exc}")
         else:
-            start_wall = wall_clock()
-            path = recording_path(folder, start_wall, label)
-            header = header_for_ride(ride, start_wall_time_unix_s=start_wall,
-                                     start_monotonic_s=clock(), extra=header_extra)
-            rec = Recorder(path, header, flush_interval_s=ride.recording.flush_interval_s,
-                           on_warning=warn)
-            if rec.start():
-                out.recorder = rec
-                out.recording_path = path
-                out.sinks.append(RecordingSink(rec))
+            from livecoach.recording.writer import recording_path
+
+            path = recording_path(folder, wall_clock(), label)
+            sink = open_ride_recording(ride, plan=plan, on_warning=on_warning or warn, path=path,
+                                       label=label, clock=clock, wall_clock=wall_clock)
+            out.recorder = sink.recorder
+            out.recording_path = path
+            out.sinks.append(sink)
 
     if display:
         from livecoach.sinks.display import DisplaySink
@@ -116,7 +107,7 @@ def build_sinks(
         else:
             from livecoach.telemetry.sender import RadioSink
 
-            out.sinks.append(RadioSink(rcfg.port, rcfg.baud, rcfg.rate_hz))
+            out.sinks.append(RadioSink.from_ride(ride))
     return out
 
 

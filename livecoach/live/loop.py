@@ -14,6 +14,7 @@ with a warning: no sink can stop the coaching.
 from __future__ import annotations
 
 import asyncio
+import collections
 import time
 from dataclasses import dataclass, field
 from typing import Any, Callable, Iterable
@@ -68,6 +69,13 @@ class LiveLoop:
         self.stats = LoopStats()
         self._failures: dict[int, int] = {}
         self._started_at = clock()
+        # Warnings from the shell (recorder thread, sinks): drained on the loop.
+        self._inbox: collections.deque[str] = collections.deque()
+
+    def post_warning(self, text: str) -> None:
+        """Hand a warning to the loop from any thread (e.g. the recorder's
+        writer thread); it reaches every sink as a Notice on the next event."""
+        self._inbox.append(text)
 
     # ------------------------------------------------------------------ sinks
     def _call(self, sink: Any, method: str, arg: Any) -> None:
@@ -88,7 +96,7 @@ class LiveLoop:
                 self._broadcast_notice(Notice(
                     self.pipeline.state.t_s, NOTICE_WARNING,
                     f"{name} switched off after repeated errors: {type(exc).__name__}: {exc}",
-                    {"sink": name},
+                    {"sink": name, "origin": "shell"},
                 ))
 
     def _broadcast_notice(self, notice: Notice) -> None:
@@ -97,6 +105,9 @@ class LiveLoop:
 
     def handle(self, event: RawEvent) -> StepResult:
         """Process one event: record it, run the pipeline, feed the sinks."""
+        while self._inbox:
+            self._broadcast_notice(Notice(event.t_s, NOTICE_WARNING, self._inbox.popleft(),
+                                          {"origin": "shell"}))
         for sink in list(self.sinks):
             self._call(sink, "on_event", event)
         result = self.pipeline.feed(event)
@@ -131,7 +142,8 @@ class LiveLoop:
                     await start()
                 except Exception as exc:
                     self._broadcast_notice(Notice(self.clock(), NOTICE_WARNING,
-                                                  f"{type(sink).__name__} did not start: {exc}", {}))
+                                                  f"{type(sink).__name__} did not start: {exc}",
+                                                  {"origin": "shell"}))
         self._started_at = self.clock()
         source_tasks = [asyncio.create_task(src.run(self.queue)) for src in self.sources]
         ticker = asyncio.create_task(self._ticker())

@@ -58,10 +58,22 @@ def run(args: argparse.Namespace) -> int:
             f"{ride.source}: no sensors configured: set power_address/speed_address, gps_port "
             "or mcu_port in [sensors] (see `livecoach scan`)"
         )
+    inbox: list[str] = []
+    live_ref: list[LiveLoop] = []
+
+    def on_warning(text: str) -> None:
+        # Called from the recorder's writer thread: hand it to the loop.
+        print(f"livecoach ride: {text}", file=sys.stderr)
+        if live_ref:
+            live_ref[0].post_warning(text)
+        else:
+            inbox.append(text)
+
     sinks = build_sinks(
         ride, plan, record=not args.no_record, recording_dir=args.recordings,
         display=not args.no_display and sys.stdout.isatty(),
         audio=False if args.mute else None, web=False if args.no_web else None,
+        on_warning=on_warning,
     )
     print_warnings(sinks)
     if sinks.recording_path is not None:
@@ -76,6 +88,9 @@ def run(args: argparse.Namespace) -> int:
             except (NotImplementedError, RuntimeError):
                 pass
         live = LiveLoop(ride, plan, sources, sinks.sinks)
+        live_ref.append(live)
+        for text in inbox + sinks.warnings:
+            live.post_warning(text)
         stats = await live.run(stop, duration_s=args.duration)
         print(f"livecoach ride: {stats.events} events processed", file=sys.stderr)
 
