@@ -92,6 +92,9 @@ def test_bad_inputs_are_clear_errors(tmp_path):
 def test_cue_names_and_notices():
     assert pattern_for("More power") == "more" and pattern_for("stand-down") == "stand_down"
     assert pattern_for("something new") == "other"
+    # The live coach's cue names (livecoach/coach/cues.py).
+    assert [pattern_for(n) for n in ("ready", "lift", "steady", "ease", "go", "trap", "done")] == [
+        "hold", "more", "hold", "ease", "final", "trap", "stand_down"]
     cue = cue_from_notice(Notice(1.0, "cue", "ease", {"cue": "ease", "text": "ease to 300 watts"}), 9.0)
     assert cue == Cue("ease", "ease to 300 watts", 9.0, 0)
     alarm = cue_from_notice(Notice(1.0, "alarm", "drag changed: CdA +0.003", {"kind": "drag_changed"}), 9.0)
@@ -125,6 +128,10 @@ def test_scheduler_interval_replacement_age_repeat_and_mute():
     assert s.offer(Cue("stand_down", "stand down", 20.1, PRIORITY_SAFETY)) == "queued"
     assert s.offer(Cue("more", "more power", 20.2)) == "kept"
     assert s.take(20.3).words == "stand down"
+    # At the end of a run the trap result and the stand-down cue become one clip, safety first.
+    assert s.offer(Cue("result", "trap 110.5 kilometres per hour", 25.0, 1)) == "queued"
+    assert s.offer(Cue("stand_down", "Done — stand down, brake gently", 25.0, PRIORITY_SAFETY)) == "merged"
+    assert s.take(25.0).words == "Done — stand down, brake gently. trap 110.5 kilometres per hour"
     # Mute drops what waits and all that comes.
     s.offer(Cue("hold", "hold now", 30.0))
     s.set_muted(True)

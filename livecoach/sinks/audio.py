@@ -86,12 +86,12 @@ TONE_PATTERNS: dict[str, tuple[Tone, ...]] = {
 
 #: Cue names (normalised: lower case, '_' for spaces and dashes) -> pattern.
 CUE_ALIASES: dict[str, str] = {
-    "more": "more", "more_power": "more", "push": "more", "up": "more", "harder": "more",
-    "hold": "hold", "steady": "hold", "on_target": "hold",
+    "more": "more", "more_power": "more", "push": "more", "up": "more", "harder": "more", "lift": "more",
+    "hold": "hold", "steady": "hold", "on_target": "hold", "ready": "hold",
     "ease": "ease", "ease_off": "ease", "less": "ease", "easier": "ease", "down": "ease",
     "final": "final", "final_effort": "final", "all_out": "final", "sprint": "final", "go": "final",
     "trap": "trap", "in_trap": "trap", "in_the_trap": "trap",
-    "stand_down": "stand_down", "stop": "stand_down", "abort": "stand_down",
+    "stand_down": "stand_down", "stop": "stand_down", "abort": "stand_down", "done": "stand_down",
 }
 
 _PRIORITY_OF_PATTERN = {"stand_down": PRIORITY_SAFETY, "alarm": PRIORITY_SAFETY,
@@ -276,6 +276,16 @@ def cue_from_notice(notice: Notice, t_s: float, speed_unit: str = "km/h") -> Cue
     return None
 
 
+def _merge_result(waiting: Cue, new: Cue) -> Cue | None:
+    """The stand-down cue and the trap result come together at the end of a
+    run: play them as one clip, the safety words first, so neither is lost."""
+    pair = {waiting.pattern, new.pattern}
+    if pair != {"result", "stand_down"}:
+        return None
+    first, second = (waiting, new) if waiting.pattern == "stand_down" else (new, waiting)
+    return Cue("stand_down", f"{first.words.rstrip('. ')}. {second.words}", new.t_s, PRIORITY_SAFETY)
+
+
 class CueScheduler:
     """The timing rules, on an injected clock (pure bookkeeping, no threads).
 
@@ -300,7 +310,8 @@ class CueScheduler:
 
     def offer(self, cue: Cue) -> str:
         """Returns what happened: "queued", "replaced", "kept" (a safety cue
-        waits and this one is lesser), "repeat" or "muted"."""
+        waits and this one is lesser), "merged" (stand-down and trap result
+        joined), "repeat" or "muted"."""
         self.counts["offered"] += 1
         if self.muted:
             self.counts["muted"] += 1
@@ -310,6 +321,11 @@ class CueScheduler:
             self.counts["repeat"] += 1
             return "repeat"
         if self.pending is not None:
+            merged = _merge_result(self.pending, cue)
+            if merged is not None:
+                self.counts["merged"] += 1
+                self.pending = merged
+                return "merged"
             if cue.priority < self.pending.priority:
                 self.counts["lesser"] += 1
                 return "kept"

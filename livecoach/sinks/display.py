@@ -98,7 +98,7 @@ _PHASE_LABELS = {
 }
 
 #: Cue names drawn in the urgent style (normalised: lower case, '_' for spaces).
-URGENT_CUES = frozenset({"stand_down", "stop", "abort", "final", "final_effort", "all_out"})
+URGENT_CUES = frozenset({"stand_down", "stop", "abort", "done", "final", "final_effort", "all_out", "go"})
 
 # ---------------------------------------------------------------- block font
 # Our own 5-row block font, 4 cells wide per digit ('#' = filled).
