@@ -143,9 +143,9 @@ def test_gating_counts_each_reason():
             samples.append(PowerSample(s.t_s + 0.01, float("nan")))
             n_nan += 1
         if isinstance(s, WheelSample) and 120.0 < s.t_s < 120.6:
-            # one wheel report with 5 revolutions too many (a 15 m/s jump)
-            samples.append(replace(s, t_s=s.t_s + 0.01, wheel_revolutions=s.wheel_revolutions + 5,
-                                   wheel_event_time_s=s.wheel_event_time_s + 0.05))
+            # one wheel report 0.2 s after the last with only 2 revolutions (a 9 m/s drop)
+            samples.append(replace(s, t_s=s.t_s + 0.01, wheel_revolutions=s.wheel_revolutions + 2,
+                                   wheel_event_time_s=s.wheel_event_time_s + 0.2))
             n_jump += 1
     est = LiveDragEstimator(ride)
     for s in samples:
