@@ -76,22 +76,16 @@ def build_sinks(
     if display:
         from livecoach.sinks.display import DisplaySink
 
-        cfg = ride.section("display")
-        out.sinks.append(DisplaySink(display_console, refresh_hz=cfg.refresh_hz,
-                                     speed_unit=cfg.speed_unit, screen=display_console is None))
+        out.sinks.append(DisplaySink.from_ride(ride, display_console, screen=display_console is None))
 
     acfg = ride.section("audio")
     if audio if audio is not None else not acfg.muted:
-        from livecoach.sinks.audio import AudioCueSink, find_player
+        from livecoach.sinks.audio import AudioCueSink
 
-        player = None if acfg.player == "none" else find_player(acfg.player)
-        if player is None:
+        sink = AudioCueSink.from_ride(ride)
+        if sink.player is None and acfg.player != "none":
             warn("audio cues: no sound player found (aplay, paplay or sox play); cues are silent")
-        out.sinks.append(AudioCueSink(
-            player=player, muted=acfg.muted, voice=acfg.voice, min_interval_s=acfg.min_interval_s,
-            repeat_after_s=acfg.repeat_after_s, max_age_s=acfg.max_age_s, volume_pct=acfg.volume_pct,
-            speech_voice=acfg.speech_voice, words_per_minute=acfg.words_per_minute,
-        ))
+        out.sinks.append(sink)
 
     wcfg = ride.section("web")
     if web if web is not None else wcfg.enabled:
