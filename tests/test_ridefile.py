@@ -21,7 +21,7 @@ from livecoach.config.ridefile import (
     register_section,
 )
 from livecoach.config.schema import setting
-from livecoach.errors import ConfigError, LivecoachError
+from livecoach.errors import ConfigError, LivecoachError, PhysicsError
 from livecoach.physics.atmosphere import air_density_kgpm3, isa_pressure_pa
 
 EXAMPLE = tomllib.loads(example_ride_text())
@@ -85,6 +85,10 @@ def test_course_built_directly_gets_its_profile():
     assert course.distances_m == (0.0, 150.0)
     assert course.grade(20.0) == pytest.approx(-0.01)
     assert course.elevation_m(500.0) == 8.5  # held beyond the ends
+    with pytest.raises(PhysicsError, match="distance_m"):
+        course.grade(math.nan)
+    with pytest.raises(PhysicsError, match="distance_m"):
+        course.elevation_m(math.inf)
 
 
 # ---------------------------------------------------------------- GPX

@@ -22,7 +22,7 @@ from pathlib import Path
 from typing import Any
 
 from livecoach.config.schema import build_section, nearest_name, setting
-from livecoach.errors import ConfigError
+from livecoach.errors import ConfigError, PhysicsError
 from livecoach.physics.atmosphere import air_density_kgpm3, isa_pressure_pa
 from livecoach.physics.power_balance import VehicleModel
 
@@ -138,6 +138,8 @@ class CourseConfig:
     def elevation_m(self, distance_m: float) -> float:
         """Elevation, m, at ``distance_m`` along the course (linear between points;
         held constant beyond the ends)."""
+        if not math.isfinite(distance_m):
+            raise PhysicsError(f"distance_m={distance_m!r} is not a finite number")
         d, e = self.distances_m, self.elevations_m
         if distance_m <= d[0]:
             return e[0]
@@ -149,6 +151,8 @@ class CourseConfig:
 
     def grade(self, distance_m: float) -> float:
         """Grade (rise over run, -) of the segment containing ``distance_m`` (0 beyond the ends)."""
+        if not math.isfinite(distance_m):
+            raise PhysicsError(f"distance_m={distance_m!r} is not a finite number")
         d, e = self.distances_m, self.elevations_m
         if distance_m < d[0] or distance_m >= d[-1]:
             return 0.0
