@@ -9,7 +9,10 @@ On every update (cheap: a few table look-ups):
   * the power averaged over ``power_smoothing_s`` compared with the target,
     through :class:`livecoach.coach.cues.CueMachine` (hysteresis + dwell);
   * the phase cues: "go" where the closing effort starts, "trap" at trap
-    entry, "done" at trap exit.
+    entry, "done" at trap exit. From "go" to the trap exit the target is
+    everything the rider has: the power available from the measured W′
+    balance (Morton 1996) plus ``final_effort_headroom_pct``; after the trap
+    exit it is 0 W (stand down).
 At most once per ``replan_interval_s`` of *sample time* (the first update
 at or after each multiple of the interval) it re-plans the rest of the run
 from the measured state with the live CdA/Crr and W′ balance
@@ -194,6 +197,12 @@ class LiveCoach:
             phase_cue = None
         if phase_cue == CUE_DONE:
             target = 0.0
+        elif phase_cue is not None:
+            # Closing effort and trap: everything the rider has (Morton 1996 ceiling
+            # from the measured W' balance), with headroom so noise never leaves power unused.
+            r = self.ride.rider
+            available = r.cp_w + (r.pmax_w - r.cp_w) * min(max(w, 0.0), r.w_prime_j) / r.w_prime_j
+            target = available * (1.0 + self.config.final_effort_headroom_pct / 100.0)
         elif self._replan is not None:
             target = self._replan.power_at(d)
         else:

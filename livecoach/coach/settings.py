@@ -35,6 +35,11 @@ class CoachConfig:
         4.0, doc="shortest time a power cue stays before another power cue", unit="s",
         lo=0.0, hi=60.0,
     )
+    final_effort_headroom_pct: float = setting(
+        10.0, doc="during the closing effort the target is the power available (from the W' "
+        "balance) plus this much, so a rider following the number leaves nothing unused",
+        unit="%", lo=0.0, hi=100.0,
+    )
     cda_bounds_factor: float = setting(
         2.0, doc="re-plans use the live CdA clamped to prior / f .. prior * f", lo=1.0, hi=10.0
     )
