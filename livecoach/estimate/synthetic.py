@@ -153,7 +153,7 @@ def synthesize_ride(
     p_resp = power_profile(0.0)
     while d < total_m and t < max_time_s:
         p_resp = a_lag * p_resp + (1.0 - a_lag) * power_profile(t)
-        p = max(0.0, p_resp * (1.0 + wob))
+        p = max(0.0, p_resp * (1.0 + wob)) if p_resp >= 0.5 else 0.0
         w = headwind_mps + gust
         m = model(t)
 
@@ -198,7 +198,7 @@ def synthesize_ride(
             mean_p = 0.0
         rep = mean_p * (1.0 + rng.gauss(0.0, power_noise_pct / 100.0)) + rng.gauss(0.0, power_noise_w)
         if mean_p == 0.0:
-            rep = 0.0
+            rep = 0.0  # not pedalling: meters report zero
         lat = max(0.005, power_latency_s + rng.gauss(0.0, 0.01))
         samples.append(PowerSample(t_rep + lat, round(rep)))
         k += 1
