@@ -19,7 +19,7 @@ from sim.engine import Simulation
 from sim.randomness import Normals, OrnsteinUhlenbeck
 from sim.rider import Rider
 from sim.run import simulate
-from sim.scenario import load_scenario, parse_scenario_dict
+from sim.scenario import parse_scenario_dict
 
 
 def flat_ride(start_speed_mps: float = 0.0, runup_m: float = 45000.0, drop_m: float = 0.0) -> dict:
@@ -98,12 +98,17 @@ def _energy_residual(run, i0: int, i1: int) -> tuple[float, float]:
     return crank, d_kinetic + d_potential + aero + rolling + bearing
 
 
-def test_energy_bookkeeping_of_the_default_run_closes():
+@pytest.fixture(scope="module")
+def default_run():
+    return simulate("default")
+
+
+def test_energy_bookkeeping_of_the_default_run_closes(default_run):
     # Work-energy theorem (common practice): crank work x drivetrain efficiency
     # = delta kinetic + delta potential (m g delta h from the true elevation)
     # + aero + rolling (+ bearing) work. The default run has gusts, survey
     # error in the grade, a rider wobble and the power limits.
-    run = simulate("default")
+    run = default_run
     speed = np.asarray(run.truth["speed_mps"])
     # From the first row above the standing-start propulsion floor (1 m/s,
     # where the core caps the propulsive force) to the end.
@@ -176,10 +181,10 @@ def test_rider_w_prime_balance_reproduces_the_skiba_2015_worked_check():
     assert rider.w_bal_j == pytest.approx(17166.0, abs=1.0)
 
 
-def test_rider_never_exceeds_the_3_parameter_limit():
+def test_rider_never_exceeds_the_3_parameter_limit(default_run):
     # Morton (1996): P <= CP + (Pmax - CP) W'bal / W' at every step.
-    sc = load_scenario("default")
-    run = simulate(sc, truth_every=1)
+    run = default_run
+    sc = run.scenario
     p = np.asarray(run.truth["power_w"])
     w = np.asarray(run.truth["w_prime_balance_j"])
     cp, wp, pmax = sc.true_cp_w, sc.true_w_prime_j, sc.true_pmax_w

@@ -19,7 +19,7 @@ import pynmea2
 import pytest
 from geographiclib.geodesic import Geodesic
 
-from livecoach.stream.events import CH_CSC, CH_GPS, CH_HEART_RATE, CH_MCU, CH_POWER
+from livecoach.stream.events import CH_CSC, CH_GPS, CH_HEART_RATE, CH_MCU, CH_POWER, CH_TICK
 from sim.engine import Simulation
 from sim.scenario import load_scenario, parse_scenario_text
 
@@ -90,7 +90,7 @@ def test_events_come_in_receive_order_and_every_channel_speaks(quiet_run):
     ts = [e.t_s for e in events]
     assert ts == sorted(ts)
     channels = {e.channel for e in events}
-    assert channels == {CH_POWER, CH_CSC, CH_GPS, CH_MCU, CH_HEART_RATE}
+    assert channels == {CH_POWER, CH_CSC, CH_GPS, CH_MCU, CH_HEART_RATE, CH_TICK}
     assert sim.summary.end_reason == "run-out done"
 
 
