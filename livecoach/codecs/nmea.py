@@ -1,4 +1,4 @@
-"""NMEA 0183 GPS sentences RMC, GGA and VTG, parsed with ``pynmea2``.
+"""NMEA 0183 GPS sentences RMC, GGA and VTG.
 
 Source: NMEA 0183 (National Marine Electronics Association), sentence
 formats RMC (recommended minimum: time, status, position, speed over ground
@@ -11,13 +11,21 @@ nautical mile, exact).
 
 Decoding requires a checksum (every GPS receiver sends one); sentences of
 other types decode to ``None`` (ignored, not an error).
+
+The sentence is cut into its address field and data fields here, with the
+same acceptance rules as ``pynmea2``'s parser (``$``, five word characters
+for talker and type, a comma, data without ``*``, ``*`` and two hex
+digits); the field split is checked against ``pynmea2`` in the tests. An
+earlier version called ``pynmea2.parse`` on every sentence: at 10 Hz GPS
+(two sentences per fix) that was the largest part of the decode cost per
+event (benchmarks/pipeline_cost.py), for a split the codec then re-parsed
+field by field anyway.
 """
 
 from __future__ import annotations
 
 import math
 import re
-from typing import Any
 
 from livecoach.codecs._errors import BAD_CHECKSUM, MALFORMED, NOT_UTF8, OUT_OF_RANGE, PayloadError
 from livecoach.errors import EncodeError
@@ -30,17 +38,9 @@ MPS_PER_KMH = 1.0 / 3.6
 
 SENTENCE_TYPES = ("RMC", "GGA", "VTG")
 
-_pynmea2: Any = None
-_NUMBER = re.compile(r"[+-]?[0-9]*\.?[0-9]+\Z|[+-]?[0-9]+\.\Z")
-
-
-def _lib() -> Any:
-    global _pynmea2
-    if _pynmea2 is None:
-        import pynmea2
-
-        _pynmea2 = pynmea2
-    return _pynmea2
+_HEX_DIGITS = frozenset("0123456789abcdefABCDEF")
+#: Address field: talker (2) + sentence type (3), word characters as ``pynmea2`` accepts them.
+_ADDRESS = re.compile(r"\w{5}\Z", re.ASCII)
 
 
 def nmea_checksum(body: str) -> int:
@@ -52,14 +52,14 @@ def nmea_checksum(body: str) -> int:
 
 
 def _float(text: str, what: str) -> float | None:
+    """A plain decimal number (sign, digits, at most one point; no exponent,
+    no ``inf``/``nan``, no ``_``), or None for an empty field."""
     if text == "":
         return None
-    if not _NUMBER.match(text):
+    digits = text[1:] if text[0] in "+-" else text
+    if not digits.replace(".", "", 1).isdigit():
         raise PayloadError(MALFORMED, f"{what} '{text}' is not a number")
-    try:
-        v = float(text)
-    except ValueError:
-        raise PayloadError(MALFORMED, f"{what} '{text}' is not a number") from None
+    v = float(text)
     if not math.isfinite(v):
         raise PayloadError(MALFORMED, f"{what} '{text}' is not a finite number")
     return v
@@ -104,27 +104,29 @@ def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
     star = text.rfind("*")
     if not text.startswith("$") or star < 0 or len(text) - star != 3:
         raise PayloadError(MALFORMED, f"not a '$...*hh' NMEA sentence: '{text[:40]}'")
-    try:
-        want = int(text[star + 1:], 16)
-    except ValueError:
-        raise PayloadError(MALFORMED, f"checksum '{text[star + 1:]}' is not two hex digits") from None
-    got = nmea_checksum(text[1:star])
+    hh = text[star + 1:]
+    if not (hh[0] in _HEX_DIGITS and hh[1] in _HEX_DIGITS):
+        raise PayloadError(MALFORMED, f"checksum '{hh}' is not two hex digits")
+    want = int(hh, 16)
+    body = text[1:star]
+    got = nmea_checksum(body)
     if got != want:
         raise PayloadError(BAD_CHECKSUM, f"sentence says {want:02X}, the characters give {got:02X}")
-    lib = _lib()
-    try:
-        msg = lib.parse(text, check=True)
-    except lib.ChecksumError as exc:  # pragma: no cover - checked above
-        raise PayloadError(BAD_CHECKSUM, str(exc)) from None
-    except Exception as exc:  # a third-party parser fed with garbage: any failure is a bad sentence
-        raise PayloadError(MALFORMED, f"pynmea2 cannot parse it: {exc}") from None
-    kind = getattr(msg, "sentence_type", "")
+    fields = body.split(",")
+    address = fields[0]
+    if len(fields) < 2 or not _ADDRESS.match(address):
+        raise PayloadError(MALFORMED, f"address field '{address[:12]}' is not talker + sentence type "
+                                      "(five letters or digits) followed by a comma")
+    if "*" in body:
+        raise PayloadError(MALFORMED, "a '*' inside the sentence")
+    kind = address[2:].upper()
     if kind not in SENTENCE_TYPES:
         return None
-    data = list(msg.data)
+    data = [f.strip() for f in fields[1:]]
+    n_data = len(data)
 
     def field(i: int) -> str:
-        return data[i].strip() if i < len(data) else ""
+        return data[i] if i < n_data else ""
 
     if kind == "RMC":
         if len(data) < 9:

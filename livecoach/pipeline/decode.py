@@ -24,6 +24,16 @@ the decoder never raises on a payload. State is kept only for rollover
 unwrapping of counters and event times, duplicate notifications and time
 going backwards, so a replay of the same events gives the same samples.
 
+A frozen sensor repeats its last payload byte for byte. Where a repeat
+cannot be new data it is rejected as ``frozen``, so the channel goes stale
+and is flagged like a silent one: a GPS sentence or a microcontroller line
+(each carries the sensor's own clock, so the same bytes again mean the clock
+stopped; beyond ``duplicate_window_s``), and a power-meter report with
+non-zero power unchanged for longer than ``[decode] frozen_after_s`` (a
+coasting meter legitimately repeats its zero-power report; a pedalling one
+changes its crank event time at least once per crank revolution). Wheel and
+heart-rate payloads legitimately repeat (stopped wheel, steady heart rate).
+
 When several wheel sources report, one is used at a time (``[decode]
 wheel_source``, default ``auto``: the CSC sensor, else the microcontroller's
 hall sensor, else the power meter's wheel data; a source silent for longer
@@ -81,6 +91,7 @@ if TYPE_CHECKING:
 DUPLICATE = "duplicate notification"
 TIME_BACKWARDS = "time went backwards"
 UNKNOWN_CHANNEL = "unknown channel"
+FROZEN = "frozen"
 
 WHEEL_SOURCES = ("csc", "mcu", "power")
 LINK_STATES = ("up", "down", "reconnecting")
@@ -112,6 +123,10 @@ class DecodeConfig:
     min_power_w: float = setting(
         -200.0, doc="reported power below this is rejected (small negatives occur when back-pedalling)",
         unit="W", lo=-2000.0, hi=0.0,
+    )
+    frozen_after_s: float = setting(
+        2.0, doc="a power meter repeating the same non-zero report this long is frozen (its reports "
+                 "are rejected until they change)", unit="s", lo=0.5, hi=60.0,
     )
     max_cadence_rpm: float = setting(250.0, doc="higher cadence is rejected", unit="rpm", lo=60.0, hi=1000.0)
     min_heart_rate_bpm: float = setting(25.0, doc="lower heart rate is rejected", unit="1/min", lo=0.0, hi=100.0)
@@ -162,6 +177,7 @@ class Decoder:
         self._dup_window_s = c.duplicate_window_s
         self._stats: dict[str, ChannelStats] = {}
         self._last: dict[str, tuple[float, bytes]] = {}
+        self._same_since: dict[str, float] = {}
         self._wheel = {
             "csc": RevolutionTracker(32, CSC_TICKS_PER_S),
             "power": RevolutionTracker(32, WHEEL_TICKS_PER_S),
@@ -201,19 +217,29 @@ class Decoder:
         if not isinstance(payload, (bytes, bytearray)):
             return self._reject(st, t_s, channel, "malformed", f"payload is {type(payload).__name__}, not bytes")
         last = self._last.get(channel)
+        same = False
         if last is not None:
             last_t, last_payload = last
             if t_s < last_t:
                 return self._reject(st, t_s, channel, TIME_BACKWARDS,
                                     f"receive time {t_s:.6f} s is before the previous {last_t:.6f} s")
-            if payload == last_payload and t_s - last_t <= self._dup_window_s and channel not in (CH_LINK, CH_CONTROL):
+            same = payload == last_payload
+            if same and t_s - last_t <= self._dup_window_s and channel not in (CH_LINK, CH_CONTROL):
                 return self._reject(st, t_s, channel, DUPLICATE,
                                     f"same {len(payload)} bytes again after {t_s - last_t:.3f} s")
         self._last[channel] = (t_s, bytes(payload))
+        if not same:
+            self._same_since[channel] = t_s
         try:
             out = handler(t_s, payload)
         except PayloadError as exc:
             return self._reject(st, t_s, channel, exc.kind, exc.detail)
+        if same and out and channel in (CH_GPS, CH_MCU, CH_POWER):
+            since = self._same_since[channel]
+            if self._frozen(channel, t_s - since, out):
+                return self._reject(st, t_s, channel, FROZEN,
+                                    f"the same {len(payload)} bytes since t = {since:.3f} s "
+                                    f"({t_s - since:.1f} s): the sensor is not updating")
         if not out:
             st.ignored += 1
             return out
@@ -244,6 +270,14 @@ class Decoder:
         st.rejected += 1
         st.reasons[kind] = st.reasons.get(kind, 0) + 1  # type: ignore[index]
         return [Rejected(t_s, channel, f"{kind}: {detail}")]
+
+    def _frozen(self, channel: str, repeated_s: float, out: list[Any]) -> bool:
+        """Whether a byte-identical repeat (for ``repeated_s``) decoded to ``out`` is a frozen sensor."""
+        if channel == CH_POWER:
+            first = out[0]
+            return (repeated_s > self.config.frozen_after_s and type(first) is PowerSample
+                    and first.power_w != 0.0)
+        return True   # GPS sentence or mcu record (a hello line decodes to nothing and never gets here)
 
     def _use_wheel(self, source: str, t_s: float) -> bool:
         """Whether wheel data from ``source`` is the one to emit now (auto failover)."""

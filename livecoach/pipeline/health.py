@@ -2,6 +2,14 @@
 
 Pure bookkeeping on the event clock (``t_s`` of the events), so replay gives
 the same health history as the live run.
+
+:meth:`HealthTracker.snapshot` is asked for after every event. Its flags
+(``link_up``, ``stale``, ``gaps``) are always current: every change of them
+(a link change, a channel going stale or recovering, a new channel) makes a
+new snapshot. Otherwise the counters and ages are those of a full snapshot
+taken at most :data:`SNAPSHOT_REFRESH_S` earlier (event time); rebuilding every channel's record
+after every event was a measurable share of the per-event cost
+(benchmarks/pipeline_cost.py) for numbers no display shows more often.
 """
 
 from __future__ import annotations
@@ -23,8 +31,13 @@ DEFAULT_STALE_AFTER_S: dict[str, float] = {
 }
 
 
+#: Longest time the counters and ages of a health snapshot may lag, s (event time).
+SNAPSHOT_REFRESH_S = 0.25
+
+
 @dataclass(slots=True)
 class _Channel:
+    limit_s: float = 3.0
     last_valid_t_s: float | None = None
     link_up: bool = True
     accepted: int = 0
@@ -48,7 +61,8 @@ class HealthTracker:
     def _get(self, channel: str) -> _Channel:
         ch = self._channels.get(channel)
         if ch is None:
-            ch = self._channels[channel] = _Channel()
+            ch = self._channels[channel] = _Channel(self.limit_s(channel))
+            self._cache = None
         return ch
 
     def limit_s(self, channel: str) -> float:
@@ -56,25 +70,31 @@ class HealthTracker:
 
     def valid(self, channel: str, t_s: float) -> bool:
         """Record a valid value; returns True when it ends a gap (sensor recovered)."""
-        ch = self._get(channel)
+        ch = self._channels.get(channel)
+        if ch is None:
+            ch = self._get(channel)
         recovered = False
-        if ch.last_valid_t_s is not None:
-            gap = t_s - ch.last_valid_t_s
-            if gap > self.limit_s(channel):
+        last = ch.last_valid_t_s
+        if last is None:
+            self._cache = None            # stale -> fresh
+        else:
+            gap = t_s - last
+            if gap > ch.limit_s:
                 if not ch.in_gap:
                     ch.gaps += 1
                 recovered = True
                 if gap > ch.longest_gap_s:
                     ch.longest_gap_s = gap
+                self._cache = None        # stale -> fresh
+            elif ch.in_gap:
+                self._cache = None
         ch.in_gap = False
         ch.last_valid_t_s = t_s
         ch.accepted += 1
-        self._cache = None
         return recovered
 
     def rejected(self, channel: str) -> None:
         self._get(channel).rejected += 1
-        self._cache = None
 
     def link(self, channel: str, up: bool) -> None:
         self._get(channel).link_up = up
@@ -84,15 +104,16 @@ class HealthTracker:
         ch = self._channels.get(channel)
         if ch is None or ch.last_valid_t_s is None:
             return True
-        return (t_s - ch.last_valid_t_s) > self.limit_s(channel) or not ch.link_up
+        return (t_s - ch.last_valid_t_s) > ch.limit_s or not ch.link_up
 
     def tick(self, t_s: float) -> list[str]:
         """Mark channels that just went stale; returns their names (once per gap)."""
         newly = []
         for name, ch in self._channels.items():
-            if ch.last_valid_t_s is None or ch.in_gap:
+            last = ch.last_valid_t_s
+            if last is None or ch.in_gap:
                 continue
-            if t_s - ch.last_valid_t_s > self.limit_s(name):
+            if t_s - last > ch.limit_s:
                 ch.in_gap = True
                 ch.gaps += 1
                 newly.append(name)
@@ -100,8 +121,11 @@ class HealthTracker:
         return newly
 
     def snapshot(self, t_s: float) -> tuple[SensorHealth, ...]:
-        if self._cache is not None and self._cache_t_s is not None and t_s - self._cache_t_s < 0.25:
-            return self._cache
+        """Every channel's health at ``t_s``: flags current; counters and ages from a
+        snapshot at most :data:`SNAPSHOT_REFRESH_S` old (see the module docstring)."""
+        cache = self._cache
+        if cache is not None and self._cache_t_s is not None and 0.0 <= t_s - self._cache_t_s < SNAPSHOT_REFRESH_S:
+            return cache
         out = []
         for name in sorted(self._channels):
             ch = self._channels[name]

@@ -99,6 +99,8 @@ class Pipeline:
         self._airspeed_mps: float | None = None
         self._wbal_j: float = ride.rider.w_prime_j
         self._coach_out: Any = None
+        # The plan is immutable: its trap speed (a property that interpolates) is read once.
+        self._planned_trap_speed_mps: float | None = getattr(plan, "trap_speed_mps", None)
         self._last_distance_m: float | None = None
         self._alarms: list[str] = []
         self._warnings: list[str] = []
@@ -237,7 +239,7 @@ class Pipeline:
             cue=getattr(coach_out, "cue", None),
             cue_text=getattr(coach_out, "cue_text", None),
             predicted_trap_speed_mps=getattr(coach_out, "predicted_trap_speed_mps", None),
-            planned_trap_speed_mps=getattr(self.plan, "trap_speed_mps", None),
+            planned_trap_speed_mps=self._planned_trap_speed_mps,
             w_prime_balance_j=self._wbal_j,
             w_prime_j=self.ride.rider.w_prime_j,
             cda_m2=snap.cda_m2,
