@@ -118,6 +118,7 @@ class WindowBuilder:
         self._node_a: int | None = None
         self._node_a_val: tuple[float, float, float] | None = None
         self._node_gen = -1
+        self._start_i = 0
         self._search_b: int | None = None
         self._prev_close: tuple[int, float, float] | None = None
         self._disp_v: float | None = None
@@ -248,12 +249,19 @@ class WindowBuilder:
         cfg = self.cfg
         while True:
             if self._node_gen != tr.generation or self._node_a is None or self._node_a < tr.base:
+                if self._node_gen != tr.generation:
+                    self._start_i = tr.base
                 self._node_gen = tr.generation
                 self._node_a = None
-                i = tr.base
-                if i >= tr.end or not tr.ready(i):
-                    return
-                val = tr.node(i)
+                # The first point with a usable speed fit starts the windows.
+                i = max(tr.base, self._start_i)
+                val = None
+                while i < tr.end and tr.ready(i):
+                    val = tr.node(i)
+                    if val is not None:
+                        break
+                    i += 1
+                self._start_i = i
                 if val is None:
                     return
                 self._node_a, self._node_a_val = i, val
@@ -484,8 +492,12 @@ class WindowBuilder:
             silent = self.wheel._last_rx_s is None or t_s - self.wheel._last_rx_s > self.cfg.stale_s
             t_evt = tr.ts[-1] + tr.t_offset_s
             v = self._disp_v if self._disp_v is not None else 0.0
-            since = max(t_s - t_evt, 1e-6)
-            v = max(0.0, min(v, self.circumference_m / since)) if since > 0.0 else v
+            # The last notification said: no wheel event between t_evt and its arrival.
+            rx = self.wheel._last_rx_s if self.wheel._last_rx_s is not None else t_s
+            quiet = rx - t_evt
+            if quiet > 0.0:
+                v = max(0.0, min(v, self.circumference_m / quiet))
+            since = max(t_s - t_evt, 0.0)
             if v < 0.3:
                 v = 0.0
             if silent and gps_fresh:
