@@ -165,6 +165,7 @@ def run_demo(
         from livecoach.report import build_report
         from livecoach.report.replay import TraceCollector
 
+        say("replaying the recording and writing the report ...")
         col = TraceCollector(0.5)
         replay = replay_recording(res.recording_path, on_step=col.take)
         res.output_check = replay.output_check
