@@ -64,7 +64,11 @@ def test_one_alarm_per_step_and_none_on_a_clean_run(seed):
 
 def test_two_steps_give_two_alarms():
     ride = example_ride()
-    syn = synthesize_ride(ride, cda_m2=CDA, crr=CRR, seed=7, gust_rms_mps=0.1,
-                          cda_steps=((110.0, 1.12 * CDA), (200.0, CDA)))
-    _, alarms = _alarms(ride, syn)
+    # +12 % at 110 s, back at 210 s, on a 9 km ride (past the course end it is flat)
+    syn = synthesize_ride(ride, cda_m2=CDA, crr=CRR, seed=7, gust_rms_mps=0.1, distance_m=9000.0,
+                          cda_steps=((110.0, 1.12 * CDA), (210.0, CDA)))
+    est, alarms = _alarms(ride, syn)
     assert [a.step_cda_m2 > 0 for a in alarms] == [True, False]
+    assert 95.0 <= alarms[0].start_t_s <= 125.0 and 195.0 <= alarms[1].start_t_s <= 230.0
+    snap = est.snapshot()
+    assert abs(snap.cda_m2 - CDA) < 3.0 * snap.cda_sd_m2

@@ -30,8 +30,9 @@ from livecoach.estimate.windows import WindowBuilder
 
 #: Windows before the change alarm is armed (and after a restart).
 ARM_AFTER_WINDOWS = 10
-#: Relative sd of CdA below which the change alarm is armed.
-ARM_REL_SD = 0.06
+#: The change alarm is armed when the parameter part of the predicted residual
+#: variance is below this share of the noise part.
+ARM_PARAM_SHARE = 0.5
 #: Consecutive same-sign outliers after which they are taken as a real change.
 OUTLIER_RUN_ACCEPT = 3
 #: Windows kept for a restart after an alarm.
@@ -89,6 +90,7 @@ class LiveDragEstimator:
         self._outlier_sign = 0
         self._pre: dict[int, FitResult | None] = {1: None, -1: None}
         self._res: FitResult | None = None
+        self._sigma2_ref: float | None = None
         self._t_s = 0.0
 
     def _new_fit(self, theta0: list[float], cov: list[list[float]], lag_lp: list[float]) -> DragFit:
@@ -115,23 +117,35 @@ class LiveDragEstimator:
     def _take(self, w: EnergyWindow) -> None:
         fit = self.fit
         b = self.builder
-        armed = (
-            self._res is not None and self._since_restart >= ARM_AFTER_WINDOWS
-            and math.sqrt(max(self._res.cov[0][0], 0.0)) < ARM_REL_SD * max(self._res.theta[0], 1e-6)
-        )
         z = 0.0
+        armed = False
         if self._res is not None and self._since_restart >= 3:
             e, var = fit.innovation(w)
+            # A change inflates the measured noise scale and would hide itself: the
+            # CUSUM normalises with the scale seen while nothing was changing.
+            ref = self._sigma2_ref if self._sigma2_ref is not None else fit.sigma2
+            ref = min(ref, fit.sigma2)
+            var = ref / fit.sigma2 * var if fit.sigma2 > 0.0 else var
             z = e / math.sqrt(var) if var > 0.0 else 0.0
+            # Armed once the estimate predicts a window better than the noise does.
+            armed = (self._since_restart >= ARM_AFTER_WINDOWS
+                     and fit.last_param_var < ARM_PARAM_SHARE * fit.last_noise_var)
             if abs(z) > self.cfg.outlier_sigma:
+                # Energy lost beyond drag with the cranks (nearly) still: braking,
+                # always set aside. Other outliers: set aside unless they persist
+                # (then the drag really changed and the alarm must see it).
+                low_power = w.work_j < 20.0 * (w.t1_s - w.t0_s)
+                if z > 0 and low_power:
+                    b.count("window_braking")
+                    self._outlier_run = 0
+                    return
                 sign = 1 if z > 0 else -1
                 if sign == self._outlier_sign:
                     self._outlier_run += 1
                 else:
                     self._outlier_sign, self._outlier_run = sign, 1
                 if self._outlier_run < OUTLIER_RUN_ACCEPT:
-                    low_power = w.work_j < 20.0 * (w.t1_s - w.t0_s)
-                    b.count("window_braking" if (z > 0 and low_power) else "window_outlier")
+                    b.count("window_outlier")
                     return
             else:
                 self._outlier_run = 0
@@ -145,6 +159,10 @@ class LiveDragEstimator:
                     self._pre[1] = self._res
                 if was_neg and c.g_neg > 0.0:
                     self._pre[-1] = self._res
+        c = self.cusum
+        if c.g_pos == 0.0 and c.g_neg == 0.0 and self._res is not None:
+            s2 = self._res.sigma2
+            self._sigma2_ref = s2 if self._sigma2_ref is None else 0.9 * self._sigma2_ref + 0.1 * s2
         fit.add(w)
         self.history.append(w)
         if self.keep_all_windows:
@@ -164,12 +182,31 @@ class LiveDragEstimator:
         th = list(pre.thetas[k])
         p = len(th)
         since = [w for w in self.history if w.t0_s >= start_t_s - 1e-9]
-        sxx = sxe = 0.0
         sigma2 = max(pre.sigma2, 1e-6)
-        v_sum = 0.0
+        # Residuals against the pre-change fit; the change point is the split that
+        # best explains them with one step of CdA (maximum likelihood, Hinkley 1971,
+        # Biometrika 58:509), searched from the CUSUM's start on.
+        rs = []
         for w in since:
             e = w.ys_j[k] - sum(w.x[i] * th[i] for i in range(p))
-            wt = 1.0 / (sigma2 * w.var_j2)
+            rs.append((w, e, 1.0 / (sigma2 * w.var_j2)))
+        best_j, best_cost = 0, math.inf
+        for j in range(max(len(rs) - 1, 1)):
+            sxx = sum(w.x[0] ** 2 * wt for w, _, wt in rs[j:])
+            sxe = sum(w.x[0] * e * wt for w, e, wt in rs[j:])
+            if sxx <= 0.0:
+                continue
+            cost = sum(e * e * wt for _, e, wt in rs[:j]) + sum(
+                (e - sxe / sxx * w.x[0]) ** 2 * wt for w, e, wt in rs[j:])
+            if cost < best_cost:
+                best_j, best_cost = j, cost
+        since = since[best_j:]
+        rs = rs[best_j:]
+        if since:
+            start_t_s = since[0].t0_s
+        sxx = sxe = 0.0
+        v_sum = 0.0
+        for w, e, wt in rs:
             sxx += w.x[0] * w.x[0] * wt
             sxe += w.x[0] * e * wt
             v_sum += w.v_mean_mps
@@ -190,10 +227,15 @@ class LiveDragEstimator:
         # New prior: the pre-change estimate shifted by the step, widened by its uncertainty.
         mean = list(th)
         mean[0] = max(cda_pre + step, 1e-4)
-        cov = [list(r) for r in pre.cov]
-        cov[0][0] += max(step_sd**2, (0.5 * step) ** 2)
+        # Prior (per unit noise scale, see regression): CdA as wide as the ride
+        # file's prior around the shifted estimate; Crr from before, widened.
+        cov = [[0.0] * p for _ in range(p)]
+        for i in range(p):
+            cov[i][i] = pre.cov[i][i] / sigma2
+        cov[0][0] = max(self.prior_cov[0][0], step_sd**2 / sigma2, (0.5 * step) ** 2 / sigma2)
         cov[1][1] *= 2.0
         fit = self._new_fit(mean, cov, self._fit_lag_prior(pre))
+        fit.sigma2 = pre.sigma2
         for w in since:
             fit.add(w)
         self.fit = fit

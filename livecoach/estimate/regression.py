@@ -35,6 +35,10 @@ from livecoach.estimate.rls import StabilisedRLS
 SCALE_PRIOR_BLOCKS = 4.0
 #: Pseudo-count (in windows) of the modelled noise (sigma^2 = 1) in the window-level scale.
 SCALE_PRIOR_WINDOWS = 6.0
+#: Bartlett-kernel bandwidth (windows) of the long-run variance factor (Newey & West 1987).
+LRV_LAGS = 4
+#: Rows kept for the long-run variance factor.
+MAX_ROWS = 2000
 
 
 @dataclass(frozen=True, slots=True)
@@ -75,6 +79,10 @@ class DragFit:
         self._open: list | None = None
         self._t_last: float | None = None
         self._prev: tuple | None = None  # (node1, d, x, ys, aux) of the last window, whitened
+        self.rows: list[tuple] = []       # (t1, x, ys, d) whitened, for the long-run variance
+        self.lrv_factor = 1.0
+        self.last_param_var = 0.0
+        self.last_noise_var = 1.0
         self.sigma2 = 1.0
         self.result: FitResult | None = None
         self.n_added = 0
@@ -115,6 +123,9 @@ class DragFit:
         xt, yt, d, aux = self.whiten(w)
         self._prev = (w.node1, d, xt, yt, aux)
         self.rls.add(xt, yt, d, aux=aux)
+        self.rows.append((w.t1_s, xt, yt, d))
+        if len(self.rows) > MAX_ROWS:
+            del self.rows[0]
         self.n_added += 1
         ob = self._open
         if ob is None:
@@ -146,28 +157,62 @@ class DragFit:
             wsum += wt
         return acc, wsum
 
+    def _long_run_factor(self, k: int, theta: list[float], t_now: float) -> float:
+        """Long-run variance of the normalised residuals over their variance.
+
+        Gusts last longer than a window, so residuals stay correlated after the
+        whitening; the Bartlett-weighted sum of their autocorrelations,
+        1 + 2 sum_l (1 - l/(L+1)) rho_l (Newey & West 1987, Econometrica 55:703),
+        scales the covariance up. Never below 1 (conservative), at most 6.
+        """
+        rows = self.rows
+        n = len(rows)
+        if n < 2 * LRV_LAGS + 4:
+            return self.lrv_factor
+        p = self.p
+        zs = []
+        ws = []
+        for t1, xt, yt, d in rows:
+            wt = 1.0 if self.memory_s is None else math.exp(-max(0.0, t_now - t1) / self.memory_s)
+            zs.append((yt[k] - sum(xt[i] * theta[i] for i in range(p))) / math.sqrt(d))
+            ws.append(wt)
+        c0 = sum(w * z * z for w, z in zip(ws, zs))
+        if c0 <= 0.0:
+            return 1.0
+        acc = 0.0
+        for lag in range(1, LRV_LAGS + 1):
+            cl = sum(ws[i] * zs[i] * zs[i - lag] for i in range(lag, n))
+            acc += (1.0 - lag / (LRV_LAGS + 1.0)) * cl
+        f = 1.0 + 2.0 * acc / c0
+        self.lrv_factor = min(max(f, 1.0), 6.0)
+        return self.lrv_factor
+
     def solve(self) -> FitResult:
         """Solve at the measured noise scale; model-average over the power lags."""
         rls = self.rls
         p = self.p
         t_now = self._t_last if self._t_last is not None else 0.0
         sigma2 = self.sigma2
-        best = 0
-        thetas: list[list[float]] = []
-        cov: list[list[float]] = []
-        js: list[float] = []
+        # Conjugate prior (theta | sigma^2 ~ N(theta0, sigma^2 V0)): the estimate does
+        # not depend on the noise scale, which only scales the covariance; so a
+        # misfit that raises the scale cannot make the estimate stubborn.
+        thetas, cov = rls.solve(1.0)
+        rss = [rls.rss(k, thetas[k]) + rls.prior_penalty(thetas[k]) for k in range(len(thetas))]
+        n = rls.n
+        dof_w = max(n - p, 0.0)
         for _ in range(2):
-            thetas, cov = rls.solve(sigma2)
-            js = [rls.rss(k, thetas[k]) / sigma2 + rls.prior_penalty(thetas[k])
-                  - 2.0 * self.lag_log_prior[k] for k in range(len(thetas))]
+            js = [rss[k] / sigma2 - 2.0 * self.lag_log_prior[k] for k in range(len(thetas))]
             best = min(range(len(js)), key=js.__getitem__)
-            n = rls.n
-            dof_w = max(n - p, 0.0)
             s_w = (SCALE_PRIOR_WINDOWS + rls.rss(best, thetas[best])) / (SCALE_PRIOR_WINDOWS + dof_w)
             acc, nb = self._block_scale(best, thetas[best], t_now)
             dof_b = max(nb - p * (nb / max(n, 1.0)), 0.0)
             sigma2 = (SCALE_PRIOR_BLOCKS * s_w + acc) / (SCALE_PRIOR_BLOCKS + dof_b)
+            sigma2 *= self._long_run_factor(best, thetas[best], t_now)
             sigma2 = min(max(sigma2, 0.05), 1.0e4)
+        js = [rss[k] / sigma2 - 2.0 * self.lag_log_prior[k] for k in range(len(thetas))]
+        best = min(range(len(js)), key=js.__getitem__)
+        sens_unit = [sum(cov[i][j] * rls.extra[j] for j in range(p)) for i in range(p)]
+        cov = [[sigma2 * cov[i][j] for j in range(p)] for i in range(p)]
         self.sigma2 = sigma2
         # Lag posterior and model averaging.
         jmin = js[best]
@@ -184,7 +229,7 @@ class DragFit:
                 for j in range(p):
                     c[i][j] += wk * dv[i] * dv[j]
         if self.power_scale_sd > 0.0:
-            sens = [sum(cov[i][j] * rls.extra[j] for j in range(p)) / sigma2 for i in range(p)]
+            sens = sens_unit
             s2 = self.power_scale_sd**2
             for i in range(p):
                 for j in range(p):
@@ -205,9 +250,10 @@ class DragFit:
         th = res.thetas[k]
         xt, yt, d, _ = self.whiten(w)
         e = yt[k] - sum(xt[i] * th[i] for i in range(self.p))
-        var = self.sigma2 * d + sum(
+        self.last_param_var = sum(
             xt[i] * sum(res.cov[i][j] * xt[j] for j in range(self.p)) for i in range(self.p))
-        return e, var
+        self.last_noise_var = self.sigma2 * d
+        return e, self.last_noise_var + self.last_param_var
 
     def lag_log_posterior(self) -> list[float]:
         res = self.result if self.result is not None else self.solve()
