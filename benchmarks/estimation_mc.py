@@ -63,7 +63,7 @@ def _estimate(ride, samples, cda_true):
             if abs(snap.cda_m2 - cda_true) > 0.03 * cda_true:
                 last_bad = snap.t_s
     snap = est.snapshot()
-    batch = fit_windows(est.all_windows, ride)
+    batch = fit_windows(list(est.all_windows), ride)
     useful = None if t8 is None else max(0.0, (last_bad if last_bad is not None else t8) - t8)
     return {
         "cda": snap.cda_m2, "cda_sd": snap.cda_sd_m2, "crr": snap.crr, "crr_sd": snap.crr_sd,

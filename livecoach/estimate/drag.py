@@ -36,7 +36,9 @@ ARM_PARAM_SHARE = 0.5
 #: Consecutive same-sign outliers after which they are taken as a real change.
 OUTLIER_RUN_ACCEPT = 3
 #: Windows kept for a restart after an alarm.
-HISTORY_WINDOWS = 1500
+HISTORY_WINDOWS = 400
+#: Windows kept for :meth:`LiveDragEstimator.batch` (an hour of 5 s windows).
+ALL_WINDOWS = 720
 
 
 def lag_grid(cfg: EstimatorConfig) -> tuple[tuple[float, ...], list[float]]:
@@ -81,7 +83,9 @@ class LiveDragEstimator:
         self.fit = self._new_fit(self.theta0, self.prior_cov, self.lag_log_prior)
         self.cusum = Cusum(cfg.cusum_drift, cfg.cusum_threshold)
         self.history: deque[EnergyWindow] = deque(maxlen=HISTORY_WINDOWS)
-        self.all_windows: list[EnergyWindow] = []
+        # The windows of the last hour or so, for batch(); bounded so that memory
+        # stays flat over a long session.
+        self.all_windows: deque[EnergyWindow] = deque(maxlen=ALL_WINDOWS)
         self.keep_all_windows = True
         self._alarms: list[DragAlarm] = []
         self._windows_used = 0
@@ -301,4 +305,4 @@ class LiveDragEstimator:
         """Offline fit of every window used so far, without forgetting (see :func:`batch_fit`)."""
         from livecoach.estimate.batch import fit_windows
 
-        return fit_windows(self.all_windows, self.ride, dict(self.builder.rejected))
+        return fit_windows(list(self.all_windows), self.ride, dict(self.builder.rejected))

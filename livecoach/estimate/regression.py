@@ -38,7 +38,7 @@ SCALE_PRIOR_WINDOWS = 6.0
 #: Bartlett-kernel bandwidth (windows) of the long-run variance factor (Newey & West 1987).
 LRV_LAGS = 4
 #: Rows kept for the long-run variance factor.
-MAX_ROWS = 2000
+MAX_ROWS = 600
 
 
 @dataclass(frozen=True, slots=True)
@@ -140,7 +140,7 @@ class DragFit:
         if ob[1] - ob[0] >= self.block_s:
             self.blocks.append(ob)
             self._open = None
-            if len(self.blocks) > 400:
+            if len(self.blocks) > 120:
                 del self.blocks[0]
 
     def _block_scale(self, k: int, theta: list[float], t_now: float) -> tuple[float, float]:
@@ -200,6 +200,8 @@ class DragFit:
         rss = [rls.rss(k, thetas[k]) + rls.prior_penalty(thetas[k]) for k in range(len(thetas))]
         n = rls.n
         dof_w = max(n - p, 0.0)
+        first = True
+        lrv = 1.0
         for _ in range(2):
             js = [rss[k] / sigma2 - 2.0 * self.lag_log_prior[k] for k in range(len(thetas))]
             best = min(range(len(js)), key=js.__getitem__)
@@ -207,8 +209,10 @@ class DragFit:
             acc, nb = self._block_scale(best, thetas[best], t_now)
             dof_b = max(nb - p * (nb / max(n, 1.0)), 0.0)
             sigma2 = (SCALE_PRIOR_BLOCKS * s_w + acc) / (SCALE_PRIOR_BLOCKS + dof_b)
-            sigma2 *= self._long_run_factor(best, thetas[best], t_now)
-            sigma2 = min(max(sigma2, 0.05), 1.0e4)
+            if first:
+                first = False
+                lrv = self._long_run_factor(best, thetas[best], t_now)
+            sigma2 = min(max(sigma2 * lrv, 0.05), 1.0e4)
         js = [rss[k] / sigma2 - 2.0 * self.lag_log_prior[k] for k in range(len(thetas))]
         best = min(range(len(js)), key=js.__getitem__)
         sens_unit = [sum(cov[i][j] * rls.extra[j] for j in range(p)) for i in range(p)]
