@@ -71,16 +71,19 @@ def test_sim_creates_a_pty_and_plays_nmea_at_the_requested_pace():
     assert all(m.status == "A" for m in rmc)
 
 
-def _drain(fd: int, until_s: float) -> bytes:
+def _drain(fd: int, done: threading.Event, limit_s: float = 30.0) -> bytes:
+    """Read a pty master until ``done`` is set and nothing more comes for 0.2 s."""
     out = bytearray()
-    deadline = time.monotonic() + until_s
+    deadline = time.monotonic() + limit_s
     while time.monotonic() < deadline:
-        r, _, _ = select.select([fd], [], [], 0.1)
+        r, _, _ = select.select([fd], [], [], 0.2)
         if r:
             try:
                 out += os.read(fd, 65536)
             except OSError:
                 break
+        elif done.is_set():
+            break
     return bytes(out)
 
 
@@ -94,11 +97,13 @@ def test_sim_writes_to_given_ports_and_stops_after_the_duration():
                          "--speed", "4", "--duration-s", "6"],
             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
         results: dict[str, bytes] = {}
-        readers = [threading.Thread(target=lambda k=k, fd=fd: results.__setitem__(k, _drain(fd, 6.0)))
+        done = threading.Event()
+        readers = [threading.Thread(target=lambda k=k, fd=fd: results.__setitem__(k, _drain(fd, done)))
                    for k, fd in (("gps", gps_master), ("mcu", mcu_master))]
         for r in readers:
             r.start()
         out, err = proc.communicate(timeout=60)
+        done.set()
         for r in readers:
             r.join()
     finally:
