@@ -207,7 +207,10 @@ class GpsSettings:
     rate_hz: float = setting(10.0, doc="fixes per second", unit="Hz", lo=0.1, hi=20.0)
     sentences: str = setting("RMC,GGA", doc="sentence types per fix, comma separated (RMC, GGA, VTG)")
     talker: str = setting("GP", doc="NMEA talker id", choices=("GP", "GN", "GL", "GA"))
-    origin_lat_deg: float = setting(31.2087, doc="latitude of the start line", unit="deg", lo=-89.0, hi=89.0)
+    origin_lat_deg: float = setting(
+        31.2087, doc="latitude of the start line (an arbitrary point for the invented course)",
+        unit="deg", lo=-89.0, hi=89.0,
+    )
     origin_lon_deg: float = setting(-113.5521, doc="longitude of the start line", unit="deg", lo=-180.0, hi=180.0)
     heading_deg: float = setting(12.0, doc="direction of travel (true)", unit="deg", lo=0.0, hi=360.0)
     position_sd_m: float = setting(1.2, doc="sd of the slowly wandering position error", unit="m", lo=0.0, hi=100.0)

@@ -21,7 +21,7 @@ from geographiclib.geodesic import Geodesic
 
 from livecoach.stream.events import CH_CSC, CH_GPS, CH_HEART_RATE, CH_MCU, CH_POWER, CH_TICK
 from sim.engine import Simulation
-from sim.scenario import load_scenario, parse_scenario_text
+from sim.scenario import parse_scenario_text
 
 BASE = """
 [scenario]
