@@ -392,8 +392,11 @@ def resolve_scenario_path(name_or_path: str | Path) -> Path:
     shipped = SCENARIO_DIR / f"{text}.toml"
     if "/" not in text and shipped.is_file():
         return shipped
+    import difflib
+
     names = available_scenarios()
-    hint = nearest_name(text, names) if names else "no scenarios are shipped"
+    close = difflib.get_close_matches(text, names, n=1, cutoff=0.5)
+    hint = f"did you mean '{close[0]}'?" if close else "shipped scenarios: " + ", ".join(names)
     raise ConfigError(f"scenario '{text}' is neither a shipped scenario nor a file; {hint}")
 
 
