@@ -5,7 +5,8 @@ angular velocity, and at each notification reports the mean power over the
 interval since the previous one, rounded to whole watts, with the cumulative
 crank revolutions and the time of the last crank event (1/1024 s, its own
 clock) and, optionally, the accumulated torque (1/32 N*m; crank work =
-2*pi * accumulated torque). It sends 0 W when the cranks have not turned.
+2*pi * accumulated torque), which integrates the same measured (noisy) power
+as the reports. It sends 0 W when the cranks have not turned.
 
 Errors modelled: a calibration scale error ``bias_pct``, a zero offset
 ``offset_w`` (plus a drift when a fault asks for it), and per-report noise
@@ -79,7 +80,6 @@ class PowerMeter:
         self.window_energy_j += p * dt
         if pedalling:
             self.window_pedalled = True
-            self.measured_work_j += (p * self._scale() + self._offset(ta)) * dt
             revs0 = self.crank_revs
             self.crank_revs += self.cadence_rpm / 60.0 * dt
             whole = int(self.crank_revs)
@@ -100,6 +100,8 @@ class PowerMeter:
             value = max(0.0, value)
         else:
             value = 0.0
+        # The meter integrates the torque it measures: the same errors as the report.
+        self.measured_work_j += value * window
         crank = None
         if cfg.crank_data:
             crank = (self.crank_count, self.clock.ticks(self.crank_event_s, CRANK_TICKS_PER_S))
