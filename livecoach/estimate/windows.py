@@ -495,7 +495,11 @@ class WindowBuilder:
             # The last notification said: no wheel event between t_evt and its arrival.
             rx = self.wheel._last_rx_s if self.wheel._last_rx_s is not None else t_s
             quiet = rx - t_evt
-            if quiet > 0.0:
+            # Slowing or stopped: no wheel event for clearly longer than one
+            # revolution at the last speed. The margin covers the jitter of
+            # the event-clock offset and of the notification latency (a
+            # quiet time just over one period is normal at speed).
+            if quiet > 0.0 and (v <= 0.0 or quiet > 1.5 * self.circumference_m / v + 0.1):
                 v = max(0.0, min(v, self.circumference_m / quiet))
             since = max(t_s - t_evt, 0.0)
             if v < 0.3:
