@@ -143,6 +143,9 @@ def bench_run(scenario_ref: str, seed: int, rider: str = "scenario",
         "planned_trap_speed_mps": plan.trap_speed_mps,
         "optimum_trap_speed_mps": optimum,
         "trap_speed_ratio": (s.trap_speed_mps / optimum) if s.trap_speed_mps and optimum else None,
+        # The planner knows one CdA and Crr: with drag or rolling steps in the
+        # scenario the optimum uses the starting values and is an upper bound.
+        "optimum_upper_bound": bool(sc.truth.cda_steps or sc.truth.crr_steps),
         "predicted_trap_speed_mps": st.predicted_trap_speed_mps,
         "w_prime_left_j": s.w_prime_at_trap_exit_j,
         "cda_true_m2": cda_true,
@@ -273,6 +276,7 @@ def summarise(records: list[dict[str, Any]]) -> dict[str, Any]:
             "batch_error_pct": _stats(col(f"batch_{name}_error_pct")),
             "live_over_batch_rms": (live_rms / batch_rms) if live_rms and batch_rms else None,
         }
+    out["optimum_upper_bound"] = any(r.get("optimum_upper_bound") for r in ok)
     cue_names = sorted({k for r in ok for k in r.get("cues", {})})
     out["cues_per_run"] = {k: statistics.fmean(r.get("cues", {}).get(k, 0) for r in ok) for k in cue_names}
     out["cue_changes"] = _stats(col("cue_changes"))
