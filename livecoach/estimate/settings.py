@@ -69,7 +69,8 @@ class EstimatorConfig:
         1.0, doc="prior sd of the head wind when it is estimated", unit="m/s", lo=0.01, hi=20.0
     )
     cusum_drift: float = setting(
-        0.5, doc="CUSUM reference value k (Page 1954), in residual standard deviations",
+        1.0, doc="CUSUM reference value k (Page 1954), in residual standard deviations "
+        "(half the smallest shift per window worth an alarm)",
         lo=0.0, hi=5.0,
     )
     cusum_threshold: float = setting(
