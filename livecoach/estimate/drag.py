@@ -251,6 +251,16 @@ class LiveDragEstimator:
         return [math.log(max(w, 1e-9)) for w in pre.lag_weights]
 
     # ---------------------------------------------------------------- output
+    def latest_track_point(self) -> tuple[float, float] | None:
+        """The newest point of the distance track in use: (time on the receive
+        clock, s; distance, m). For the wheel sensor that is the last wheel
+        event at its own event time (mapped to the receive clock), so timing
+        lines between two such points is exact to the wheel's resolution."""
+        tr = self.builder.track
+        if tr is None or not tr.ts:
+            return None
+        return tr.ts[-1] + tr.t_offset_s, tr.ds[-1]
+
     def snapshot(self) -> DragEstimate:
         """The current estimate and kinematics (a frozen record)."""
         t = self._t_s

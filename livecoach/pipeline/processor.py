@@ -101,7 +101,7 @@ class Pipeline:
         self._coach_out: Any = None
         # The plan is immutable: its trap speed (a property that interpolates) is read once.
         self._planned_trap_speed_mps: float | None = getattr(plan, "trap_speed_mps", None)
-        self._last_distance_m: float | None = None
+        self._last_track_point: tuple[float, float] | None = None
         self._alarms: list[str] = []
         self._warnings: list[str] = []
         self._state: LiveState = LiveState(t_s=0.0, w_prime_balance_j=self._wbal_j,
@@ -185,12 +185,14 @@ class Pipeline:
 
         # Trap timing and phase from the distance track.
         if distance_m is not None:
-            # Time the trap only on updates of the distance itself: an event
-            # from another sensor carries the old distance at a later time.
+            # Time the trap on the distance track's own points (wheel events
+            # at their event times), not on the receive times of whatever
+            # event came last: lines are timed to the wheel's resolution.
             crossed = None
-            if distance_m != self._last_distance_m:
-                self._last_distance_m = distance_m
-                crossed = self.trap.feed(t_s, distance_m)
+            point = self.estimator.latest_track_point()
+            if point is not None and point != self._last_track_point:
+                self._last_track_point = point
+                crossed = self.trap.feed(point[0], point[1])
             new_phase = self._phase
             if self._phase == PHASE_WAITING and speed_mps is not None and speed_mps > ROLLING_SPEED_MPS:
                 new_phase = PHASE_RUNUP
