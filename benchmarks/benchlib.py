@@ -164,21 +164,25 @@ class RecordingSpec:
     """A simulated ride to record.
 
     scenario: shipped scenario name; duration_s: simulated time (None: the
-    scenario's own end); coached: the rider follows the live coach and the
-    plan goes into the header (as on the day); label: cache file stem.
+    scenario's own end); coached: the module coaches with the plan made from
+    the ride file, which goes into the header (as on the day); rider_follows:
+    the simulated rider follows the coach's target power (else the
+    scenario's scripted profile); label: cache file stem.
     """
 
     label: str
     scenario: str
     duration_s: float | None = None
     coached: bool = True
+    rider_follows: bool = True
 
 
 #: The closed-loop default run-up (about 5 min): the stream the per-event cost is measured on.
-RUNUP = RecordingSpec("runup-default", "default", None, True)
-#: One hour of riding with 10 Hz GPS (RMC + GGA), 10 Hz air speed, 2 Hz power and wheel,
-#: barometer and heart rate: the replay-throughput recording.
-HOUR = RecordingSpec("hour-soak", "soak", 3600.0, True)
+RUNUP = RecordingSpec("runup-default", "default", None, True, True)
+#: One hour of riding with the module coaching (re-plans until the trap exit), 10 Hz GPS
+#: (RMC + GGA), 10 Hz air speed, 2 Hz power and wheel, barometer and heart rate; the rider
+#: keeps to the soak scenario's easy scripted power: the replay-throughput recording.
+HOUR = RecordingSpec("hour-soak", "soak", 3600.0, True, False)
 
 
 def scenario_for(spec: RecordingSpec):
@@ -240,8 +244,8 @@ def write_simulated_recording(spec: RecordingSpec, path: Path) -> dict[str, Any]
     if not rec.start():
         raise RuntimeError(f"cannot record to {path}: {warnings}")
     loop = LiveLoop(ride, plan, sinks=[RecordingSink(rec)])
-    if spec.coached:
-        sc = dataclasses.replace(sc, rider=dataclasses.replace(sc.rider, mode="coach"))
+    mode = "coach" if (spec.coached and spec.rider_follows) else "scripted"
+    sc = dataclasses.replace(sc, rider=dataclasses.replace(sc.rider, mode=mode))
     sim = Simulation(sc, None, _LoopController(loop), keep_truth=False)
     n = 0
     for _ in sim.events():

@@ -41,6 +41,10 @@ SENTENCE_TYPES = ("RMC", "GGA", "VTG")
 _HEX_DIGITS = frozenset("0123456789abcdefABCDEF")
 #: Address field: talker (2) + sentence type (3), word characters as ``pynmea2`` accepts them.
 _ADDRESS = re.compile(r"\w{5}\Z", re.ASCII)
+#: Whitespace inside a sentence (fields are stripped only when there is any).
+_SPACE = re.compile(r"\s")
+#: Highest data-field index read (RMC mode indicator).
+_MAX_FIELD = 11
 
 
 def nmea_checksum(body: str) -> int:
@@ -122,15 +126,17 @@ def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
     kind = address[2:].upper()
     if kind not in SENTENCE_TYPES:
         return None
-    data = [f.strip() for f in fields[1:]]
+    data = fields[1:]
+    if _SPACE.search(body):
+        data = [f.strip() for f in data]
     n_data = len(data)
-
-    def field(i: int) -> str:
-        return data[i] if i < n_data else ""
+    if n_data < _MAX_FIELD + 1:
+        data += [""] * (_MAX_FIELD + 1 - n_data)   # absent optional fields read as empty
+    field = data.__getitem__
 
     if kind == "RMC":
-        if len(data) < 9:
-            raise PayloadError(MALFORMED, f"RMC has {len(data)} fields, needs at least 9")
+        if n_data < 9:
+            raise PayloadError(MALFORMED, f"RMC has {n_data} fields, needs at least 9")
         status = field(1)
         mode = field(11)
         valid = status == "A" and mode != "N"
@@ -148,8 +154,8 @@ def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
             utc_date=field(8) or None,
         )
     if kind == "GGA":
-        if len(data) < 9:
-            raise PayloadError(MALFORMED, f"GGA has {len(data)} fields, needs at least 9")
+        if n_data < 9:
+            raise PayloadError(MALFORMED, f"GGA has {n_data} fields, needs at least 9")
         quality = _float(field(5), "GGA fix quality")
         valid = quality is not None and quality > 0
         lat = _angle(field(1), field(2), 2, "GGA latitude")
@@ -166,8 +172,8 @@ def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
             hdop=_float(field(7), "GGA HDOP"),
         )
     # VTG: true track, T, magnetic track, M, knots, N, km/h, K[, mode]
-    if len(data) < 8:
-        raise PayloadError(MALFORMED, f"VTG has {len(data)} fields, needs at least 8")
+    if n_data < 8:
+        raise PayloadError(MALFORMED, f"VTG has {n_data} fields, needs at least 8")
     kmh = _float(field(6), "VTG speed km/h")
     knots = _float(field(4), "VTG speed knots")
     speed = kmh * MPS_PER_KMH if kmh is not None else (None if knots is None else knots * MPS_PER_KNOT)

@@ -66,6 +66,11 @@ def ticks_from_time_s(t_s: float, ticks_per_s: int, bits: int = 16) -> int:
     return int(t_s * ticks_per_s) & ((1 << bits) - 1)
 
 
+#: Highest revolution rate credited after a sensor restart, 1/s (a 0.45 m road wheel at
+#: 130 km/h turns about 25 times a second; crank cadence stays far below).
+MAX_RESTART_RATE_HZ = 40.0
+
+
 class CounterUnwrapper:
     """Turns a wrapping ``bits``-bit counter into an ever-growing integer.
 
@@ -205,7 +210,7 @@ class RevolutionTracker:
         try:
             revs = self._revs.update(revolutions_raw)
         except PayloadError:
-            self._rebase(event_ticks_raw, receive_t_s)
+            self._restart(revolutions_raw, event_ticks_raw, receive_t_s)
             raise
         d_revs = revs - self._last_revs
         d_ticks = (event_ticks_raw - self._last_ticks) & self._tick_mask
@@ -231,6 +236,26 @@ class RevolutionTracker:
         self._last_event_time_s = self._ticks_total / self.ticks_per_s
         self._last_revs = revs
         return RevolutionReading(revs, self._last_event_time_s, True, d_revs, dt_s, d_revs / dt_s)
+
+    def _restart(self, revolutions_raw: int, event_ticks_raw: int, receive_t_s: float) -> None:
+        """The counter went backwards: the sensor restarted (a brown-out, a battery
+        change), so its counter and its event clock both began again from zero.
+
+        The sensor's own clock cannot bridge the restart: the unwrapped event
+        time goes on by the receive-time gap since the last event, and the
+        revolutions counted since the restart are added to the distance when
+        they are plausible for that gap (at most :data:`MAX_RESTART_RATE_HZ`;
+        more means garbage, which is not counted). The next reading then
+        gives a speed from the sensor's own clock again."""
+        gap_s = max(receive_t_s - self._event_receive_t_s, 0.0)
+        self._ticks_total += int(round(gap_s * self.ticks_per_s))
+        self._last_ticks = event_ticks_raw
+        self._event_receive_t_s = receive_t_s
+        self._last_event_time_s = self._ticks_total / self.ticks_per_s
+        if revolutions_raw <= MAX_RESTART_RATE_HZ * gap_s + 2:
+            self._revs._total += revolutions_raw
+        value = self._revs.value
+        self._last_revs = value if value is not None else 0
 
     def _rebase(self, event_ticks_raw: int, receive_t_s: float) -> None:
         d_ticks = (event_ticks_raw - (self._last_ticks or 0)) & self._tick_mask

@@ -1,4 +1,5 @@
-"""Frozen sensors are rejected and flagged; the health snapshot's flags are always current.
+"""Decode-layer robustness: frozen sensors rejected and flagged, the health
+snapshot's flags always current, a restarted wheel sensor absorbed.
 
 A frozen sensor repeats its last payload byte for byte (the simulator's
 ``stuck`` fault does exactly that). Payloads are made with the project's
@@ -12,6 +13,7 @@ from __future__ import annotations
 
 import random
 
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -157,3 +159,42 @@ def test_snapshot_counts_refresh_within_the_limit():
         assert snap[0].accepted <= h._channels[CH_GPS].accepted
     h.snapshot(t + SNAPSHOT_REFRESH_S)
     assert h.snapshot(t + SNAPSHOT_REFRESH_S)[0].accepted == 400
+
+
+# ----------------------------------------------------------------- sensor restart
+def test_wheel_sensor_restart_keeps_distance_and_sensor_time_continuous():
+    """A CSC sensor that restarts (coin-cell brown-out) begins both its uint32
+    revolution counter and its 1/1024 s event clock again from zero (Bluetooth
+    SIG CSC service: cumulative wheel revolutions, last wheel event time).
+    The restart report itself is rejected; revolutions counted after it still
+    count, and the unwrapped sensor time goes on by the receive-time gap."""
+    d = Decoder()
+    circ_revs_per_s = 10.0                          # 10 wheel revolutions per second
+    samples = []
+    for k in range(40):
+        t = 100.0 + 0.5 * k
+        n = int(circ_revs_per_s * t)
+        ev_ticks = int(n / circ_revs_per_s * 1024)
+        if t >= 110.0:                              # restart at 110 s: both counters from zero
+            n -= 1100
+            ev_ticks -= int(110.0 * 1024)
+        samples.append(d.feed(RawEvent(t, CH_CSC, encode_csc(CscMeasurement.make(wheel=(n, ev_ticks & 0xFFFF))))))
+    kinds = _kinds([s for out in samples for s in out])
+    assert kinds.count("counter went backwards") == 1 and kinds.count("WheelSample") == 39
+    wheel = [s for out in samples for s in out if not isinstance(s, Rejected)]
+    revs = [s.wheel_revolutions for s in wheel]
+    times = [s.wheel_event_time_s for s in wheel]
+    assert all(b > a for a, b in zip(revs, revs[1:]))
+    assert all(0.3 < b - a < 1.1 for a, b in zip(times, times[1:]))   # no jump of the sensor clock
+    # 19.5 s of riding at 10 rev/s, less the 5 revolutions between the last report and the restart
+    assert revs[-1] - revs[0] == pytest.approx(195 - 5, abs=2)
+
+
+def test_garbage_that_looks_like_a_restart_adds_no_distance():
+    d = Decoder()
+    d.feed(RawEvent(0.0, CH_CSC, encode_csc(CscMeasurement.make(wheel=(500_000, 1000)))))
+    d.feed(RawEvent(0.5, CH_CSC, encode_csc(CscMeasurement.make(wheel=(500_005, 1512)))))
+    out = d.feed(RawEvent(1.0, CH_CSC, encode_csc(CscMeasurement.make(wheel=(400_000, 2000)))))
+    assert _kinds(out) == ["counter went backwards"]
+    out = d.feed(RawEvent(1.5, CH_CSC, encode_csc(CscMeasurement.make(wheel=(400_005, 2512)))))
+    assert out[0].wheel_revolutions == 500_005 + 5        # the 400,000 were not counted
