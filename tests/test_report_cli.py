@@ -122,7 +122,8 @@ def test_report_of_a_csv_ride(recorded, tmp_path):
 
 def test_report_input_errors(tmp_path):
     missing = livecoach("report", str(tmp_path / "nope.lcrec"), "--out", str(tmp_path))
-    assert missing.returncode == 1 and "not found" in missing.stderr and "Traceback" not in missing.stderr
+    # A missing input is a usage error (2), as in replay, export and coastdown.
+    assert missing.returncode == 2 and "not found" in missing.stderr and "Traceback" not in missing.stderr
     csv_path = tmp_path / "ride.csv"
     csv_path.write_text("time_s,power_w,speed_mps\n0,100,5\n")
     no_config = livecoach("report", str(csv_path), "--out", str(tmp_path))

@@ -9,6 +9,15 @@ import sys
 from typing import Any
 
 
+def description_from_doc(doc: str | None, fallback: str) -> str:
+    """A subcommand's ``--help`` description: its module docstring without the
+    first paragraph (the title line) and without reST double backquotes."""
+    parts = (doc or "").split("\n\n", 1)
+    if len(parts) < 2 or not parts[1].strip():
+        return fallback
+    return parts[1].strip().replace("``", "")
+
+
 def add_config_argument(parser: argparse.ArgumentParser, required: bool = True) -> None:
     parser.add_argument(
         "--config", "-c", metavar="RIDE.toml", required=required,

@@ -38,6 +38,17 @@ def _command_modules() -> list:
     return sorted(mods, key=lambda m: m.NAME)
 
 
+EXIT_CODES_TEXT = "exit codes: 0 done, 1 the job failed, 2 usage or configuration error"
+
+
+def _description(mod) -> str:
+    """The module's DESCRIPTION, else its one-line HELP as a sentence."""
+    text = getattr(mod, "DESCRIPTION", None)
+    if text:
+        return text
+    return mod.HELP[:1].upper() + mod.HELP[1:] + ("" if mod.HELP.endswith(".") else ".")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="livecoach",
@@ -45,12 +56,13 @@ def build_parser() -> argparse.ArgumentParser:
             "On-board ride computer for human-powered speed vehicles: live drag "
             "estimation, run-up pacing, telemetry, recording and replay."
         ),
+        epilog=EXIT_CODES_TEXT,
     )
     parser.add_argument("--version", action="version", version=f"livecoach {__version__}")
     parser.add_argument("--debug", action="store_true", help="show tracebacks on errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for mod in _command_modules():
-        p = sub.add_parser(mod.NAME, help=mod.HELP, description=getattr(mod, "DESCRIPTION", mod.HELP))
+        p = sub.add_parser(mod.NAME, help=mod.HELP, description=_description(mod), epilog=EXIT_CODES_TEXT)
         p.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                        help="show tracebacks on errors")
         mod.add_arguments(p)

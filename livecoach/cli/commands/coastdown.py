@@ -14,11 +14,11 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from livecoach.cli.common import print_json
+from livecoach.cli.common import description_from_doc, print_json
 
 NAME = "coastdown"
 HELP = "fit CdA and Crr from the stretches of a recording ridden without pedalling"
-DESCRIPTION = __doc__.split("\n\n", 1)[1].strip().replace("``", "") if __doc__ else HELP
+DESCRIPTION = description_from_doc(__doc__, HELP)
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

@@ -13,12 +13,12 @@ from __future__ import annotations
 import argparse
 import re
 
-from livecoach.cli.common import print_json
+from livecoach.cli.common import description_from_doc, print_json
 from livecoach.errors import ConfigError, DecodeError
 
 NAME = "decode"
 HELP = "decode one sensor payload (BLE characteristic value as hex, or a serial line) for debugging"
-DESCRIPTION = __doc__
+DESCRIPTION = "Decode one sensor payload from a log, for debugging a sensor. " + description_from_doc(__doc__, HELP)
 
 _BASE_UUID = re.compile(r"0000([0-9a-f]{4})-0000-1000-8000-00805f9b34fb\Z")
 _KINDS = {"2a63": "2A63", "2a5b": "2A5B", "2a37": "2A37", "mcu": "mcu", "nmea": "nmea"}

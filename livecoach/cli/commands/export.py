@@ -12,11 +12,11 @@ import argparse
 import sys
 from pathlib import Path
 
-from livecoach.cli.common import print_json
+from livecoach.cli.common import description_from_doc, print_json
 
 NAME = "export"
 HELP = "write a recording as a plain CSV ride (one row per pipeline state update)"
-DESCRIPTION = __doc__.split("\n\n", 1)[1].strip().replace("``", "") if __doc__ else HELP
+DESCRIPTION = description_from_doc(__doc__, HELP)
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:

@@ -14,11 +14,11 @@ import argparse
 import sys
 from pathlib import Path
 
-from livecoach.cli.common import print_json
+from livecoach.cli.common import description_from_doc, print_json
 
 NAME = "replay"
 HELP = "replay a recording (or a CSV ride with --config) through the pipeline; print the summary"
-DESCRIPTION = __doc__.split("\n\n", 1)[1].strip().replace("``", "") if __doc__ else HELP
+DESCRIPTION = description_from_doc(__doc__, HELP)
 
 
 def _positive(text: str) -> float:

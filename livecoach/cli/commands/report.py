@@ -14,11 +14,11 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from livecoach.cli.common import print_json
+from livecoach.cli.common import description_from_doc, print_json
 
 NAME = "report"
 HELP = "write the post-ride report (one HTML page with figures) for a recording or a CSV ride"
-DESCRIPTION = __doc__.split("\n\n", 1)[1].strip().replace("``", "") if __doc__ else HELP
+DESCRIPTION = description_from_doc(__doc__, HELP)
 
 
 def _positive(text: str) -> float:
@@ -50,9 +50,9 @@ def run(args: argparse.Namespace) -> int:
 
     path = Path(args.input)
     if not path.exists():
-        raise RecordingError(f"'{path}' not found")
+        raise ConfigError(f"'{path}' not found")
     if path.is_dir():
-        raise RecordingError(f"'{path}' is a folder, not a recording or a CSV ride")
+        raise ConfigError(f"'{path}' is a folder, not a recording or a CSV ride")
     ride = load_ride_file(args.config) if args.config else None
     plan = None
     if args.plan:
