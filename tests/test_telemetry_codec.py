@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import random
 import struct
@@ -73,8 +74,8 @@ def test_crc_residue_is_zero_with_the_crc_appended_msb_first():
     "data, encoded",
     [
         # Worked examples of the COBS encoding (Cheshire & Baker 1999, Fig. 2 style;
-        # the same vectors are listed on the COBS article of Wikipedia) - from memory,
-        # and each is also checked against the `cobs` package below.
+        # the vectors usually quoted for COBS) - from memory, and each is also
+        # checked against the `cobs` package below.
         (b"\x00", b"\x01\x01"),
         (b"\x00\x00", b"\x01\x01\x01"),
         (b"\x00\x11\x00", b"\x01\x02\x11\x01"),
@@ -224,6 +225,15 @@ def state_frames(draw):
 @given(state_frames())
 def test_state_frame_codec_round_trips_exactly_on_its_grid(frame):
     assert unpack_packet(pack_frame(frame)[:-1]) == frame
+
+
+def test_float32_fields_keep_values_up_to_the_float32_maximum():
+    # Regression (found by the round-trip property above): values between 3.4e38 and the
+    # largest float32, 3.4028234663852886e38 (IEEE 754 binary32), were clamped to 3.4e38.
+    big = struct.unpack("<f", struct.pack("<f", 3.4000001549684603e38))[0]
+    frame = dataclasses.replace(state_frame(_live_state(), 1), crr_sd=big, cda_sd_m2=-big)
+    got = unpack_packet(pack_frame(frame)[:-1])
+    assert got.crr_sd == big and got.cda_sd_m2 == -big
 
 
 @settings(max_examples=100, deadline=None)

@@ -172,10 +172,16 @@ def _i32(value: float | None, scale: float = 1.0) -> int:
     return _q(value, scale, -(2**31) + 1, 2**31 - 1, _I32_NONE)
 
 
+#: Largest finite IEEE 754 binary32 value, (2 - 2**-23) * 2**127.
+_F32_MAX = 3.4028234663852886e38
+
+
 def _f32(value: float | None) -> float:
+    """A value for a float32 field: NaN for unknown, clamped to the finite
+    float32 range (a clamp below it would change values float32 can hold)."""
     if value is None or not math.isfinite(value):
         return math.nan
-    return min(3.4e38, max(-3.4e38, value))
+    return min(_F32_MAX, max(-_F32_MAX, value))
 
 
 def _un(q: int, none: int, scale: float = 1.0) -> float | None:
