@@ -111,6 +111,18 @@ def _reject_result(traffic: SensorTraffic, good: int, reasons: Counter, cfg: Any
                        f"{bad} of {total} messages rejected (most: {top}, {count}x)", hint)
 
 
+def _decoded(
+    traffic: SensorTraffic, cfg: Any, decode: Callable[[Any], Any]
+) -> tuple[list[tuple[float, Any]], CheckResult | None]:
+    """Decoded (t_s, value) pairs, and the row to report instead when the link
+    is down, too slow, or too many messages are rejected (else None)."""
+    link = _link_result(traffic, cfg)
+    if link is not None:
+        return [], link
+    good, reasons = _decode_all(traffic, decode)
+    return good, _reject_result(traffic, len(good), reasons, cfg)
+
+
 def _rate_text(traffic: SensorTraffic) -> str:
     return f"{len(traffic.events) / max(traffic.window_s, 1e-9):.1f}/s"
 
@@ -150,13 +162,9 @@ _SPEED_HINT = ("check wheel_circumference_m in [vehicle] and that the sensor wat
 def judge_power(traffic: SensorTraffic, ride: Any, cfg: Any) -> list[CheckResult]:
     """The crank power meter (Cycling Power Measurement 0x2A63)."""
     name = f"{label('power')} {traffic.spec.where}"
-    link = _link_result(traffic, cfg)
-    if link is not None:
-        return [link]
-    good, reasons = _decode_all(traffic, lambda ev: cycling_power.decode_cycling_power(ev.payload))
-    rej = _reject_result(traffic, len(good), reasons, cfg)
-    if rej is not None:
-        return [rej]
+    good, problem = _decoded(traffic, cfg, lambda ev: cycling_power.decode_cycling_power(ev.payload))
+    if problem is not None:
+        return [problem]
     powers = [float(m.instantaneous_power_w) for _, m in good]
     hi = max(MAX_PLAUSIBLE_POWER_W, 2.0 * float(ride.rider.pmax_w))
     bad = [p for p in powers if not MIN_PLAUSIBLE_POWER_W <= p <= hi]
@@ -178,13 +186,9 @@ def judge_power(traffic: SensorTraffic, ride: Any, cfg: Any) -> list[CheckResult
 def judge_speed(traffic: SensorTraffic, ride: Any, cfg: Any) -> list[CheckResult]:
     """The wheel-speed sensor (CSC Measurement 0x2A5B): must carry wheel data."""
     name = f"{label('speed')} {traffic.spec.where}"
-    link = _link_result(traffic, cfg)
-    if link is not None:
-        return [link]
-    good, reasons = _decode_all(traffic, lambda ev: csc.decode_csc(ev.payload))
-    rej = _reject_result(traffic, len(good), reasons, cfg)
-    if rej is not None:
-        return [rej]
+    good, problem = _decoded(traffic, cfg, lambda ev: csc.decode_csc(ev.payload))
+    if problem is not None:
+        return [problem]
     wheel = [(m.wheel_revolutions, m.last_wheel_event_ticks) for _, m in good
              if m.wheel_revolutions is not None]
     if not wheel:
@@ -201,13 +205,9 @@ def judge_speed(traffic: SensorTraffic, ride: Any, cfg: Any) -> list[CheckResult
 def judge_heart_rate(traffic: SensorTraffic, ride: Any, cfg: Any) -> list[CheckResult]:
     """The heart-rate strap (Heart Rate Measurement 0x2A37); optional, so problems warn."""
     name = f"{label('heart_rate')} {traffic.spec.where}"
-    link = _link_result(traffic, cfg)
-    if link is not None:
-        return [link]
-    good, reasons = _decode_all(traffic, lambda ev: heart_rate.decode_heart_rate(ev.payload))
-    rej = _reject_result(traffic, len(good), reasons, cfg)
-    if rej is not None:
-        return [rej]
+    good, problem = _decoded(traffic, cfg, lambda ev: heart_rate.decode_heart_rate(ev.payload))
+    if problem is not None:
+        return [problem]
     rates = [float(m.heart_rate_bpm) for _, m in good]
     lo, hi = HEART_RATE_RANGE_BPM
     if any(not lo <= r <= hi for r in rates):
@@ -297,13 +297,9 @@ def judge_gps(traffic: SensorTraffic, ride: Any, cfg: Any) -> list[CheckResult]:
 def judge_mcu(traffic: SensorTraffic, ride: Any, cfg: Any) -> list[CheckResult]:
     """The sensor microcontroller (lsl1 lines): air data, hall-sensor wheel, buttons."""
     name = f"{label('mcu')} {traffic.spec.where}"
-    link = _link_result(traffic, cfg)
-    if link is not None:
-        return [link]
-    good, reasons = _decode_all(traffic, lambda ev: mcu_line.decode_mcu_line(ev.payload))
-    rej = _reject_result(traffic, len(good), reasons, cfg)
-    if rej is not None:
-        return [rej]
+    good, problem = _decoded(traffic, cfg, lambda ev: mcu_line.decode_mcu_line(ev.payload))
+    if problem is not None:
+        return [problem]
     records = [r for _, r in good]
     air = [r for r in records if isinstance(r, mcu_line.McuAir)]
     wheel = [(r.revolutions, r.event_time_us) for r in records if isinstance(r, mcu_line.McuWheel)]

@@ -309,6 +309,11 @@ def _speed_block(c: _Ctx, scale: int) -> list[Text]:
         if v is not None and not st.speed_stale:
             dv = (v - st.planned_speed_mps) * c.factor
             side.append(_line((f"{dv:+.1f}", STYLE_ABOVE if dv >= 0 else STYLE_BELOW)))
+    return _big_block(rows, style, side)
+
+
+def _big_block(rows: list[str], style: str, side: list[Text]) -> list[Text]:
+    """Big-digit ``rows`` in ``style`` with the ``side`` lines to their right."""
     block_w = max(len(r) for r in rows) + 2
     out = []
     for i, row in enumerate(rows):
@@ -487,14 +492,7 @@ def _big_power_block(c: _Ctx) -> list[Text]:
         side.append(_line(_stale_tag(_power_age_s(st))))
     side.append(_line(("target", STYLE_LABEL)))
     side.append(_line((_fmt(st.target_power_w, ".0f"), STYLE_VALUE)))
-    block_w = max(len(r) for r in rows) + 2
-    out = []
-    for i, row in enumerate(rows):
-        t = _line((row.ljust(block_w), style))
-        if i < len(side):
-            t.append_text(side[i])
-        out.append(t)
-    return out
+    return _big_block(rows, style, side)
 
 
 def _side_by_side(left: list[Text], right: list[Text], left_width: int) -> list[Text]:
