@@ -27,7 +27,7 @@ from livecoach.sinks.display import render_svg  # noqa: E402
 
 
 def chromium() -> str:
-    for name in ("chromium", "chromium-browser", "google-chrome"):
+    for name in ("chromium", "chromium-browser"):
         path = shutil.which(name)
         if path:
             return path
