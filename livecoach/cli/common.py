@@ -18,6 +18,28 @@ def description_from_doc(doc: str | None, fallback: str) -> str:
     return parts[1].strip().replace("``", "")
 
 
+def positive_float(text: str) -> float:
+    """argparse type: a finite number > 0 (else a usage error, exit 2)."""
+    try:
+        x = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not (x > 0.0 and math.isfinite(x)):
+        raise argparse.ArgumentTypeError(f"{text!r}: expected a number > 0")
+    return x
+
+
+def positive_int(text: str) -> int:
+    """argparse type: a whole number >= 1 (else a usage error, exit 2)."""
+    try:
+        n = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if n < 1:
+        raise argparse.ArgumentTypeError(f"{text!r}: expected a whole number >= 1")
+    return n
+
+
 def add_config_argument(parser: argparse.ArgumentParser, required: bool = True) -> None:
     parser.add_argument(
         "--config", "-c", metavar="RIDE.toml", required=required,

@@ -7,6 +7,8 @@ import sys
 import time
 from typing import Any
 
+from livecoach.cli.common import positive_float, positive_int
+
 NAME = "ground"
 HELP = "receive, show and record the radio telemetry frames from the vehicle"
 DESCRIPTION = (
@@ -21,14 +23,14 @@ DESCRIPTION = (
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--port", required=True, help="serial port of the radio modem (e.g. /dev/ttyUSB0)")
-    p.add_argument("--baud", type=int, default=57600, help="baud rate (default 57600)")
+    p.add_argument("--baud", type=positive_int, default=57600, help="baud rate (default 57600)")
     p.add_argument("--record", metavar="FILE",
                    help="append every frame and rejected packet to FILE (JSON Lines)")
     p.add_argument("--json", action="store_true",
                    help="print one JSON object per line (frames, faults, and a summary at the end)")
     p.add_argument("--plain", action="store_true", help="plain lines even on a terminal")
-    p.add_argument("--duration", type=float, metavar="S", help="stop after S seconds")
-    p.add_argument("--frames", type=int, metavar="N", help="stop after N good frames")
+    p.add_argument("--duration", type=positive_float, metavar="S", help="stop after S seconds")
+    p.add_argument("--frames", type=positive_int, metavar="N", help="stop after N good frames")
 
 
 #: Short names of the sensor channels for the screen.

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import argparse
 
+from livecoach.cli.common import positive_float
+
 NAME = "sim"
 HELP = "play a simulated run in real time: GPS NMEA and microcontroller lines over serial ports"
 DESCRIPTION = (
@@ -23,7 +25,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
                         "scenario has air-speed, barometer or hall-sensor data)")
     p.add_argument("--speed", type=float, default=1.0, help="time factor: 2 plays twice as fast (default 1)")
     p.add_argument("--seed", type=int, default=None, help="seed (default: the scenario's)")
-    p.add_argument("--duration-s", type=float, default=None, help="stop after this much simulated time, s")
+    p.add_argument("--duration-s", type=positive_float, default=None, help="stop after this much simulated time, s")
     p.add_argument("--quiet", action="store_true", help="print only the port names and the end")
 
 
