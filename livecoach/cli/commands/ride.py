@@ -43,7 +43,7 @@ def run(args: argparse.Namespace) -> int:
     import sys
 
     from livecoach.config.ridefile import load_ride_file
-    from livecoach.errors import SourceError
+    from livecoach.errors import ConfigError
     from livecoach.live.assemble import build_sinks, print_warnings
     from livecoach.live.loop import LiveLoop
     from livecoach.sources import sources_from_ride
@@ -54,7 +54,7 @@ def run(args: argparse.Namespace) -> int:
         print(f"livecoach ride: plan: {w}", file=sys.stderr)
     sources = sources_from_ride(ride)
     if not sources:
-        raise SourceError(
+        raise ConfigError(
             f"{ride.source}: no sensors configured: set power_address/speed_address, gps_port "
             "or mcu_port in [sensors] (see `livecoach scan`)"
         )
