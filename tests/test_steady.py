@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 
 import pytest
-from hypothesis import assume, given, settings
+from hypothesis import assume, example, given, settings
 from hypothesis import strategies as st
 
 from livecoach.errors import NoSolutionError, PhysicsError
@@ -59,6 +59,10 @@ def test_thinner_air_at_altitude_gives_more_speed():
 
 @settings(max_examples=150, deadline=None)
 @given(vehicle=vehicles, power_w=st.floats(1.0, 1500.0), grade=grades, rho=densities, wind=winds)
+# Regression (found by hypothesis): a coasting speed of ~135 m/s was rejected
+# because the bracket doubled from 128 to 256 m/s, past the 200 m/s limit.
+@example(vehicle=VehicleModel(mass_kg=178.0, cda_m2=0.015, crr=0.00390625, drivetrain_efficiency=1.0),
+         power_w=1.0, grade=-0.0546875, rho=0.71875, wind=0.0)
 def test_power_to_speed_to_power_round_trip(vehicle, power_w, grade, rho, wind):
     v = steady_speed_mps(power_w, grade, rho, vehicle, wind)
     assert v > 0.0

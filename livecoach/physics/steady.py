@@ -135,11 +135,11 @@ def steady_speed_mps(
         # A descent that coasts: find the terminal coasting speed v0, F(v0) = 0.
         lo, hi = tiny, 1.0
         while force(hi) < 0.0:
-            lo, hi = hi, hi * 2.0
-            if hi > MAX_SPEED_MPS:
+            if hi >= MAX_SPEED_MPS:
                 raise NoSolutionError(
                     f"coasting speed above {MAX_SPEED_MPS} m/s on grade {g:+.4f}: check the inputs"
                 )
+            lo, hi = hi, min(hi * 2.0, MAX_SPEED_MPS)
         v0 = _solve(force, lo, force(lo), hi, force(hi), tol)
         if wheel_w == 0.0:
             return v0
@@ -161,11 +161,11 @@ def steady_speed_mps(
         hi = max(2.0 * v0, v0 + 1.0)
     f_hi = f(hi)
     while f_hi < 0.0:
-        lo, f_lo = hi, f_hi
-        hi *= 2.0
-        if hi > MAX_SPEED_MPS:
+        if hi >= MAX_SPEED_MPS:
             raise NoSolutionError(
                 f"steady speed above {MAX_SPEED_MPS} m/s at {p:.1f} W: check the inputs"
             )
+        lo, f_lo = hi, f_hi
+        hi = min(hi * 2.0, MAX_SPEED_MPS)
         f_hi = f(hi)
     return _solve(f, lo, f_lo, hi, f_hi, tol)
