@@ -24,6 +24,10 @@ from livecoach.stream.events import CH_GPS, CH_LINK, CH_MCU, RawEvent
 from livecoach.stream.samples import AirSample, GpsSample, LinkSample, Rejected, WheelSample
 
 RMC = b"$GPRMC,123519,A,4807.038,N,01131.000,E,022.4,084.4,230394,003.1,W*6A"
+# The same fix one second later (checksum: XOR of the characters between "$" and "*",
+# NMEA 0183; checked with pynmea2): a receiver never repeats a sentence byte for byte,
+# and the decode layer rejects a repeat as a frozen sensor.
+RMC_NEXT = b"$GPRMC,123520,A,4807.038,N,01131.000,E,022.4,084.4,230394,003.1,W*60"
 
 
 class Device:
@@ -103,9 +107,9 @@ def test_gps_lines_unplug_and_replug(tmp_path):
         await asyncio.sleep(0.2)      # a few failed reopen attempts
         dev.plug()
         await _next(queue, _link("up", CH_GPS))
-        dev.write(RMC + b"\r\n")
+        dev.write(RMC_NEXT + b"\r\n")
         again = await _collect(queue, 1, CH_GPS)
-        assert again[0].payload == RMC
+        assert again[0].payload == RMC_NEXT
         await src.stop()
         await asyncio.wait_for(task, 5.0)
         assert src.partial_lines_dropped == 1 and src.reconnects == 1
