@@ -55,9 +55,9 @@ def test_the_rider_follows_the_controllers_target_with_the_human_lag():
         "weather": {"gust_rms_mps": 0.0},
     }
     sc = parse_scenario_dict(data, "closed loop test")
-    ctl = StepController(20.0, 400.0)
-    run = simulate(sc, controller=ctl)
-    assert ctl.fed == len(run.events)
+    step_ctrl = StepController(20.0, 400.0)
+    run = simulate(sc, controller=step_ctrl)
+    assert step_ctrl.fed == len(run.events)
     t = np.asarray(run.truth["t_s"])
     target = np.asarray(run.truth["target_power_w"])
     power = np.asarray(run.truth["power_w"])

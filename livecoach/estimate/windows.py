@@ -269,7 +269,7 @@ class WindowBuilder:
             a = self._node_a
             ta_own = tr.ts[a - tr.base]
             b = self._search_b if self._search_b is not None else a + 1
-            while b < tr.end and tr.ts[b - tr.base] < ta_own + cfg.window_s:
+            while b < tr.end and tr.ts[-tr.base + b] < ta_own + cfg.window_s:
                 b += 1
             self._search_b = b
             if b >= tr.end or not tr.ready(b):
@@ -295,7 +295,7 @@ class WindowBuilder:
             self._search_b = b + 1
             # Keep what the fits around b still need.
             keep = b
-            while keep > tr.base and tr.ts[keep - 1 - tr.base] >= tr.ts[b - tr.base] - 3.0:
+            while keep > tr.base and tr.ts[keep - 1 - tr.base] >= tr.ts[-tr.base + b] - 3.0:
                 keep -= 1
             tr.prune(keep)
             t_keep = tr.t(keep) + self.lag_lo_s - 2.0
