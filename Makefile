@@ -6,7 +6,7 @@ STAMP_RUN  := $(VENV)/.stamp-run
 STAMP_TEST := $(VENV)/.stamp-test
 PYTEST_ARGS ?=
 
-.PHONY: demo test test-fast bench soak clean venv
+.PHONY: demo test test-fast bench soak fuzz clean venv
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -36,6 +36,9 @@ bench: $(STAMP_TEST)
 
 soak: $(STAMP_TEST)
 	$(BIN)/python benchmarks/soak.py --hours 12
+
+fuzz: $(STAMP_TEST)
+	LIVECOACH_FUZZ=long $(BIN)/python -m pytest -q tests/test_fuzz_inputs.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache .hypothesis

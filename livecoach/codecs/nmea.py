@@ -73,7 +73,10 @@ def _angle(value: str, hemisphere: str, degree_digits: int, what: str) -> float 
     """ddmm.mmmm / dddmm.mmmm + N/S/E/W -> signed degrees."""
     if value == "" and hemisphere == "":
         return None
-    if len(value) < degree_digits + 2 or hemisphere not in ("NS" if degree_digits == 2 else "EW"):
+    point = value.find(".")
+    whole = point if point >= 0 else len(value)
+    if whole != degree_digits + 2 or hemisphere not in ("NS" if degree_digits == 2 else "EW"):
+        # exactly degree_digits + 2 digits before the point: "001.0000000" is not 1 deg nor 1 min
         raise PayloadError(MALFORMED, f"{what} '{value},{hemisphere}' is not d{'d' * degree_digits}mm.mmmm,hemisphere")
     deg = _float(value[:degree_digits], what)
     minutes = _float(value[degree_digits:], what)
