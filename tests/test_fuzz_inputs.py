@@ -1,7 +1,7 @@
 """Fuzzing every input the module parses, with one budget selectable for long runs.
 
-Budget: ``LIVECOACH_FUZZ`` = ``ci`` (default: a few hundred examples per test,
-a few seconds each), ``long`` (fifty times that: ``make fuzz``) or a number
+Budget: ``LIVECOACH_FUZZ`` = ``ci`` (default: 30 to 150 examples per test,
+a second or two each), ``long`` (a hundred times that: ``make fuzz``) or a number
 of examples per test. Inputs are grown from valid ones (made by the
 project's encoders, whose byte layouts are checked against the Bluetooth SIG
 GATT specifications, NMEA 0183 and the lsl1 note in tests/test_codec_*) and
@@ -72,11 +72,11 @@ _PROFILE = os.environ.get("LIVECOACH_FUZZ", "ci").strip().lower()
 
 def fuzz(ci_examples: int):
     """Hypothesis settings for a fuzz test: ``ci_examples`` in the normal suite,
-    fifty times that with LIVECOACH_FUZZ=long, or LIVECOACH_FUZZ examples."""
+    a hundred times that with LIVECOACH_FUZZ=long, or LIVECOACH_FUZZ examples."""
     if _PROFILE == "ci":
         n = ci_examples
     elif _PROFILE == "long":
-        n = 50 * ci_examples
+        n = 100 * ci_examples
     else:
         try:
             n = int(_PROFILE)
@@ -206,7 +206,7 @@ CODECS = [
 
 @pytest.mark.parametrize("name, valid, decode, resign", CODECS, ids=[c[0] for c in CODECS])
 def test_codecs_accept_or_reject_cleanly_and_accept_only_finite_values(name, valid, decode, resign):
-    @fuzz(300)
+    @fuzz(150)
     @given(valid, st.lists(mutation, max_size=6), st.booleans())
     def check(payload, ops, fix):
         data = mutate(payload, ops)
@@ -226,7 +226,7 @@ def test_codecs_accept_or_reject_cleanly_and_accept_only_finite_values(name, val
                                                    (mcu_line, decode_mcu_line, _resign_mcu)],
                          ids=["nmea", "lsl1"])
 def test_hostile_numbers_in_text_protocols_are_rejected(valid, decode, resign):
-    @fuzz(300)
+    @fuzz(150)
     @given(valid, hostile_number, st.integers(0, 30))
     def check(line, word, pos):
         data = resign(_splice_text(line, word, pos))
@@ -245,7 +245,7 @@ def test_nmea_field_split_agrees_with_pynmea2():
     parser) must see the same sentence type and the same data fields."""
     import pynmea2
 
-    @fuzz(300)
+    @fuzz(150)
     @given(nmea_line, st.lists(st.tuples(st.integers(0, 200), st.sampled_from(list(",.0123456789ANSEWV-"))),
                                max_size=3))
     def check(line, edits):
@@ -303,7 +303,7 @@ def _events(items) -> list[RawEvent]:
     return out
 
 
-@fuzz(200)
+@fuzz(100)
 @given(event_list)
 def test_decode_layer_never_raises_and_emits_only_finite_samples(items):
     d = Decoder()
@@ -316,7 +316,7 @@ def test_decode_layer_never_raises_and_emits_only_finite_samples(items):
         assert sum(s["reasons"].values()) == s["rejected"]
 
 
-@fuzz(60)
+@fuzz(30)
 @given(event_list)
 def test_pipeline_never_raises_and_shows_only_finite_numbers(items):
     from livecoach.pipeline.processor import Pipeline
@@ -405,7 +405,7 @@ def _usable(ride) -> None:
         pipe.feed(RawEvent(float(k), CH_POWER, encode_cycling_power(CyclingPowerMeasurement.make(250))))
 
 
-@fuzz(300)
+@fuzz(150)
 @given(st.lists(ride_edit, min_size=1, max_size=4))
 def test_ride_file_values_load_or_give_a_config_error(edits):
     data = _edit(_BASE, edits)
@@ -417,7 +417,7 @@ def test_ride_file_values_load_or_give_a_config_error(edits):
     _usable(ride)
 
 
-@fuzz(200)
+@fuzz(100)
 @given(st.lists(st.tuples(st.integers(0, 10**6), st.sampled_from(list("=[]\"'#.,\n 0123456789abcdefxyz_-+eE{}"))),
                 min_size=1, max_size=8))
 def test_ride_file_text_loads_or_gives_a_config_error(edits):
@@ -439,7 +439,7 @@ cell = st.one_of(st.floats(-1e3, 1e4).map(repr), st.sampled_from(["", "nan", "in
                                                                   "  3 ", "1,5"]))
 
 
-@fuzz(100)
+@fuzz(50)
 @given(st.lists(st.sampled_from(CSV_COLUMNS), min_size=1, max_size=8, unique=True),
        st.lists(st.lists(cell, min_size=1, max_size=9), max_size=25), st.booleans())
 def test_csv_ride_loads_or_gives_an_error_and_keeps_only_finite_values(tmp_path_factory, header, rows, sort_time):
@@ -474,7 +474,7 @@ def plan_text(tmp_path_factory) -> str:
 def test_plan_file_loads_or_gives_an_error(plan_text, tmp_path):
     from livecoach.plan.plan import load_plan
 
-    @fuzz(100)
+    @fuzz(50)
     @given(st.lists(mutation, min_size=1, max_size=5), st.sampled_from(["", "nan", "inf", "-1", "1e999", "x"]),
            st.integers(0, 10**6))
     def check(ops, word, pos):
@@ -520,7 +520,7 @@ def test_recording_reader_reads_or_gives_a_recording_error(small_recording, tmp_
     from livecoach.errors import RecordingError
     from livecoach.recording import RecordingReader
 
-    @fuzz(150)
+    @fuzz(75)
     @given(st.lists(mutation, min_size=1, max_size=8), st.booleans())
     def check(ops, keep_header):
         data = small_recording
@@ -548,7 +548,7 @@ def test_telemetry_frames_parse_or_give_a_frame_error():
 
     good = pack_frame(state_frame(LiveState(t_s=12.5, distance_m=300.0, speed_mps=20.0, power_w=300.0), 7))
 
-    @fuzz(300)
+    @fuzz(150)
     @given(st.lists(mutation, max_size=6), st.binary(max_size=30))
     def check(ops, noise):
         data = mutate(good, ops)
