@@ -117,7 +117,7 @@ def rows(r: dict) -> list[tuple[str, str, str, str]]:
         out.append(("re-plan", f"median {pt['replan_ms']['median']:.1f} ms, max {pt['replan_ms']['max']:.1f} ms", "", ""))
     cg = r.get("callgrind")
     if cg and "skipped" not in cg:
-        for name in ("estimation_only", "coaching"):
+        for name in ("estimation_only", "coaching", "coaching_between_replans"):
             x = cg[name]
             out.append((f"instructions/event ({name.replace('_', ' ')})",
                         f"{x['instructions_per_event'] / 1e3:.0f} k -> Pi 4 ~{x['pi4']['estimate_us']:.0f} us "
