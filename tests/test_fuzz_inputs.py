@@ -1,8 +1,9 @@
 """Fuzzing every input the module parses, with one budget selectable for long runs.
 
 Budget: ``LIVECOACH_FUZZ`` = ``ci`` (default: 30 to 150 examples per test,
-a second or two each), ``long`` (a hundred times that: ``make fuzz``) or a number
-of examples per test. Inputs are grown from valid ones (made by the
+a second or two each, derandomized like the rest of the suite), ``long`` (a
+hundred times that, exploring new inputs on every run: ``make fuzz``; also
+chosen by ``HYPOTHESIS_PROFILE=explore``) or a number of examples per test. Inputs are grown from valid ones (made by the
 project's encoders, whose byte layouts are checked against the Bluetooth SIG
 GATT specifications, NMEA 0183 and the lsl1 note in tests/test_codec_*) and
 then mutated byte by byte; checksums are recomputed half of the time so the
@@ -67,12 +68,14 @@ from livecoach.stream.events import (
     RawEvent,
 )
 
-_PROFILE = os.environ.get("LIVECOACH_FUZZ", "ci").strip().lower()
+_PROFILE = (os.environ.get("LIVECOACH_FUZZ")
+            or ("long" if os.environ.get("HYPOTHESIS_PROFILE") == "explore" else "ci")).strip().lower()
 
 
 def fuzz(ci_examples: int):
     """Hypothesis settings for a fuzz test: ``ci_examples`` in the normal suite,
-    a hundred times that with LIVECOACH_FUZZ=long, or LIVECOACH_FUZZ examples."""
+    a hundred times that with LIVECOACH_FUZZ=long, or LIVECOACH_FUZZ examples
+    (the long runs explore: not derandomized)."""
     if _PROFILE == "ci":
         n = ci_examples
     elif _PROFILE == "long":
@@ -82,9 +85,10 @@ def fuzz(ci_examples: int):
             n = int(_PROFILE)
         except ValueError:
             raise RuntimeError(f"LIVECOACH_FUZZ={_PROFILE!r}: expected ci, long or a number of examples") from None
+    extra = {} if _PROFILE == "ci" else {"derandomize": False}
     return settings(max_examples=n, deadline=None,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
-                                           HealthCheck.filter_too_much])
+                                           HealthCheck.filter_too_much], **extra)
 
 
 def _finite_fields(obj: Any, where: str) -> None:
