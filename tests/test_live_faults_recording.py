@@ -321,3 +321,55 @@ def test_damaged_header_is_a_clear_error_naming_the_file(recorded, tmp_path, dam
                        capture_output=True, text=True, timeout=120)
     assert r.returncode == 1
     assert str(bad) in r.stderr and words in r.stderr and "Traceback" not in r.stderr
+
+
+@pytest.mark.slow
+def test_a_full_card_reaches_every_sink_as_a_warning_and_coaching_goes_on(tmp_path, card):
+    """In process, so the sinks can be watched: the recorder's warning (from its
+    writer thread) is posted to the loop and reaches the sinks as a Notice;
+    the states before and after it carry a target power and a cue."""
+    import asyncio
+
+    from live_rig import Collector
+    from livecoach.live.loop import LiveLoop
+    from livecoach.plan import make_plan
+    from livecoach.recording.session import open_ride_recording
+    from sim.scenario import load_scenario
+    from sim.source import SimSource
+
+    mnt = card("small", ["-t", "tmpfs", "-o", "size=1m", "tmpfs"])
+    sc = load_scenario("default")
+    sc = dataclasses.replace(sc, run=dataclasses.replace(sc.run, max_time_s=150.0))
+    plan = make_plan(sc.ride)
+    holder = {}
+    sink = open_ride_recording(sc.ride, plan=plan, path=mnt / "ride.lcrec",
+                               on_warning=lambda text: holder["loop"].post_warning(text),
+                               clock=lambda: 0.0, wall_clock=lambda: 1_937_000_000.0)
+    col = Collector()
+
+    class FillTheCard:
+        """Something else fills the card 40 s into the ride."""
+
+        done = False
+
+        def on_state(self, st) -> None:
+            if st.t_s >= 40.0 and not self.done:
+                self.done = True
+                with open(mnt / "other-files.bin", "wb", buffering=0) as f:
+                    try:
+                        while True:
+                            f.write(b"\0" * 4096)
+                    except OSError:
+                        pass
+
+    source = SimSource(sc, speed=20.0, target_fn=lambda: holder["loop"].pipeline.state.target_power_w)
+    loop = LiveLoop(sc.ride, plan, [source], [sink, col, FillTheCard()], clock=source.clock, tick_s=1e9)
+    holder["loop"] = loop
+    asyncio.run(asyncio.wait_for(loop.run(), 120.0))
+    warned = [n for n in col.notices if n.kind == "warning" and "disk is full" in n.text]
+    assert len(warned) == 1 and 40.0 <= warned[0].t_s < 45.0
+    assert sink.recorder.status == "failed" and loop.stats.sink_errors == {}
+    after = col.between(warned[0].t_s, 150.0)
+    assert len(after) > 2000 and all(s.target_power_w is not None and s.cue for s in after)
+    result = replay_recording(mnt / "ride.lcrec")
+    assert 0 < result.events < loop.stats.events + loop.stats.ticks
