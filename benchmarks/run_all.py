@@ -28,6 +28,8 @@ import benchlib  # noqa: E402
 HERE = Path(__file__).resolve().parent
 STEPS = ("pipeline_cost", "replay_throughput", "startup", "plan_timing", "sim_ride_memory", "callgrind")
 SLOW = ("sim_ride_memory", "callgrind")
+#: Script of each step (the rest are ``<step>.py``).
+SCRIPTS = {"callgrind": "callgrind_events.py"}
 
 
 def _json_child(script: str, *args: str, timeout_s: float = 3600.0) -> tuple[dict, benchlib.ChildRun]:
@@ -55,13 +57,18 @@ def collect(skip: set[str], say=print) -> dict:
             continue
         say(f"- {step} ...")
         t0 = time.monotonic()
-        if step == "sim_ride_memory":
-            data, child = _json_child("soak.py", "--scenario", "default", "--no-faults")
-            data = {"peak_rss_mb": child.peak_rss_bytes / 2**20, "simulated_s": data.get("simulated_s"),
-                    "events": data.get("events"), "wall_s": data.get("wall_s"),
-                    "failures": data.get("failures")}
-        else:
-            data, _ = _json_child(f"{step}.py")
+        try:
+            if step == "sim_ride_memory":
+                data, child = _json_child("soak.py", "--scenario", "default", "--no-faults")
+                data = {"peak_rss_mb": child.peak_rss_bytes / 2**20, "simulated_s": data.get("simulated_s"),
+                        "events": data.get("events"), "wall_s": data.get("wall_s"),
+                        "failures": data.get("failures")}
+            else:
+                data, _ = _json_child(SCRIPTS.get(step, f"{step}.py"))
+        except (RuntimeError, OSError) as exc:     # one broken benchmark must not hide the others
+            say(f"  {step} FAILED: {exc}")
+            results.setdefault("failed", {})[step] = str(exc)
+            continue
         data["bench_wall_s"] = time.monotonic() - t0
         results[step] = data
     if "decode_layer" not in skip:
@@ -159,8 +166,10 @@ def main() -> int:
     path = benchlib.write_results("latest", {"results": r, "total_wall_s": time.monotonic() - t0})
     print()
     print_table(r)
+    for step, why in r.get("failed", {}).items():
+        print(f"FAILED: {step}: {why.splitlines()[0] if why else ''}")
     print(f"\nresults: {path.relative_to(benchlib.ROOT)}")
-    return 0
+    return 1 if r.get("failed") else 0
 
 
 if __name__ == "__main__":
