@@ -580,3 +580,13 @@ def test_regression_angle_with_the_point_in_the_wrong_place_is_rejected():
             decode_nmea(f"${body}*{nmea_checksum(body):02X}".encode(), 1.0)
     body = "GPGGA,054800.00,4807,N,01131,E,1,08,0.9,1000.0,M,0.0,M,,"          # whole minutes are fine
     assert decode_nmea(f"${body}*{nmea_checksum(body):02X}".encode(), 1.0).latitude_deg == pytest.approx(48 + 7 / 60)
+
+
+def test_regression_position_without_hemisphere_is_rejected():
+    """Found by test_nmea_field_split_agrees_with_pynmea2 (LIVECOACH_FUZZ=long): an
+    empty hemisphere field passed the check (the empty string is "in" any string)
+    and then read as west/south, a sign error; NMEA 0183 needs N/S and E/W."""
+    for body in ("GPRMC,000000.00,A,0000.00000,N,00100.00000,,,101.080,0.00,170531,,,A",
+                 "GPGGA,054800.00,4807.038,,01131.000,E,1,08,0.9,545.4,M,46.9,M,,"):
+        with pytest.raises(DecodeError, match="hemisphere"):
+            decode_nmea(f"${body}*{nmea_checksum(body):02X}".encode(), 1.0)

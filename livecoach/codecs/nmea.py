@@ -75,7 +75,7 @@ def _angle(value: str, hemisphere: str, degree_digits: int, what: str) -> float 
         return None
     point = value.find(".")
     whole = point if point >= 0 else len(value)
-    if whole != degree_digits + 2 or hemisphere not in ("NS" if degree_digits == 2 else "EW"):
+    if whole != degree_digits + 2 or hemisphere not in (("N", "S") if degree_digits == 2 else ("E", "W")):
         # exactly degree_digits + 2 digits before the point: "001.0000000" is not 1 deg nor 1 min
         raise PayloadError(MALFORMED, f"{what} '{value},{hemisphere}' is not d{'d' * degree_digits}mm.mmmm,hemisphere")
     deg = _float(value[:degree_digits], what)
@@ -86,7 +86,7 @@ def _angle(value: str, hemisphere: str, degree_digits: int, what: str) -> float 
     limit = 90.0 if degree_digits == 2 else 180.0
     if out > limit:
         raise PayloadError(OUT_OF_RANGE, f"{what} {out:.6f} deg exceeds {limit:g}")
-    return -out if hemisphere in "SW" else out
+    return -out if hemisphere in ("S", "W") else out
 
 
 def _speed(v: float | None, what: str) -> float | None:
