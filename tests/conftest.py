@@ -12,6 +12,10 @@ A failure found while exploring becomes an ``@example`` regression in its test.
 from __future__ import annotations
 
 import os
+import subprocess
+from pathlib import Path
+
+import pytest
 
 from hypothesis import HealthCheck, settings
 
@@ -22,3 +26,29 @@ settings.register_profile(
     "explore", max_examples=2000, suppress_health_check=[HealthCheck.too_slow], deadline=None
 )
 settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "repeatable"))
+
+
+def _mount(args: list[str]) -> bool:
+    if os.geteuid() != 0:
+        return False
+    return subprocess.run(["mount", *args], capture_output=True).returncode == 0
+
+
+@pytest.fixture
+def mounted(tmp_path):
+    """Mount helper (root only, for disk-full and read-only tests): yields
+    make(name, mount args) -> mount point; unmounts everything afterwards.
+    Skips the test where mounting is not allowed."""
+    points: list[Path] = []
+
+    def make(name: str, args: list[str]) -> Path:
+        mnt = tmp_path / name
+        mnt.mkdir()
+        if not _mount([*args, str(mnt)]):
+            pytest.skip("cannot mount a test file system here (needs root and mount rights)")
+        points.append(mnt)
+        return mnt
+
+    yield make
+    for mnt in reversed(points):
+        subprocess.run(["umount", "-l", str(mnt)], capture_output=True)

@@ -149,30 +149,6 @@ def test_sigkill_of_the_live_job_loses_at_most_one_second(tmp_path):
         assert result.output_check == "reproduced" and result.outputs_compared > 0
 
 
-def _mount(args: list[str]) -> bool:
-    if os.geteuid() != 0:
-        return False
-    return subprocess.run(["mount", *args], capture_output=True).returncode == 0
-
-
-@pytest.fixture
-def card(tmp_path):
-    """Mount helper (root only): yields make(name, mount args) -> mount point; unmounts after."""
-    points: list[Path] = []
-
-    def make(name: str, args: list[str]) -> Path:
-        mnt = tmp_path / name
-        mnt.mkdir()
-        if not _mount([*args, str(mnt)]):
-            pytest.skip("cannot mount a test file system here (needs root and mount rights)")
-        points.append(mnt)
-        return mnt
-
-    yield make
-    for mnt in reversed(points):
-        subprocess.run(["umount", "-l", str(mnt)], capture_output=True)
-
-
 def _ride_until_done(folder: Path, recordings: Path, duration_s: float, during=None):
     with Feeder(folder) as feeder:
         child = _start_ride(folder, feeder, recordings, duration_s=duration_s)
@@ -196,8 +172,8 @@ def _check_kept_and_replays(path: Path, err: str) -> None:
 
 
 @pytest.mark.slow
-def test_disk_full_during_the_live_job(tmp_path, card):
-    mnt = card("small", ["-t", "tmpfs", "-o", "size=1m", "tmpfs"])
+def test_disk_full_during_the_live_job(tmp_path, mounted):
+    mnt = mounted("small", ["-t", "tmpfs", "-o", "size=1m", "tmpfs"])
 
     def fill_card(_path: Path) -> None:
         time.sleep(0.5)
@@ -215,7 +191,7 @@ def test_disk_full_during_the_live_job(tmp_path, card):
 
 
 @pytest.mark.slow
-def test_card_turns_read_only_during_the_live_job(tmp_path, card):
+def test_card_turns_read_only_during_the_live_job(tmp_path, mounted):
     # ext4 mounted errors=remount-ro turns read-only on a storage error, as a
     # failing SD card does; the kernel's trigger_fs_error file raises one
     # (Linux ext4 sysfs interface, Documentation/ABI/testing/sysfs-fs-ext4).
@@ -224,7 +200,7 @@ def test_card_turns_read_only_during_the_live_job(tmp_path, card):
         f.truncate(8 << 20)
     if subprocess.run(["mkfs.ext4", "-q", "-F", str(image)], capture_output=True).returncode != 0:
         pytest.skip("mkfs.ext4 not available")
-    mnt = card("card", ["-o", "loop,errors=remount-ro", str(image)])
+    mnt = mounted("card", ["-o", "loop,errors=remount-ro", str(image)])
     device = subprocess.run(["findmnt", "-n", "-o", "SOURCE", str(mnt)], capture_output=True,
                             text=True).stdout.strip()
     trigger = Path("/sys/fs/ext4") / Path(device).name / "trigger_fs_error"
@@ -324,7 +300,7 @@ def test_damaged_header_is_a_clear_error_naming_the_file(recorded, tmp_path, dam
 
 
 @pytest.mark.slow
-def test_a_full_card_reaches_every_sink_as_a_warning_and_coaching_goes_on(tmp_path, card):
+def test_a_full_card_reaches_every_sink_as_a_warning_and_coaching_goes_on(tmp_path, mounted):
     """In process, so the sinks can be watched: the recorder's warning (from its
     writer thread) is posted to the loop and reaches the sinks as a Notice;
     the states before and after it carry a target power and a cue."""
@@ -337,7 +313,7 @@ def test_a_full_card_reaches_every_sink_as_a_warning_and_coaching_goes_on(tmp_pa
     from sim.scenario import load_scenario
     from sim.source import SimSource
 
-    mnt = card("small", ["-t", "tmpfs", "-o", "size=1m", "tmpfs"])
+    mnt = mounted("small", ["-t", "tmpfs", "-o", "size=1m", "tmpfs"])
     sc = load_scenario("default")
     sc = dataclasses.replace(sc, run=dataclasses.replace(sc.run, max_time_s=150.0))
     plan = make_plan(sc.ride)

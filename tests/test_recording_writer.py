@@ -81,30 +81,6 @@ class GatedFile:
         self.real.close()
 
 
-def _mount(args: list[str]) -> bool:
-    if os.geteuid() != 0:
-        return False
-    return subprocess.run(["mount", *args], capture_output=True).returncode == 0
-
-
-@pytest.fixture
-def mounted(tmp_path):
-    """Mount helper: yields a function (options, fstype, source) -> mount point; unmounts after."""
-    points: list[Path] = []
-
-    def make(name: str, args: list[str]) -> Path:
-        mnt = tmp_path / name
-        mnt.mkdir()
-        if not _mount([*args, str(mnt)]):
-            pytest.skip("cannot mount a test file system here (needs root and mount rights)")
-        points.append(mnt)
-        return mnt
-
-    yield make
-    for mnt in reversed(points):
-        subprocess.run(["umount", "-l", str(mnt)], capture_output=True)
-
-
 # --------------------------------------------------------------------- basics
 def test_records_reach_the_disk_within_the_flush_interval(tmp_path):
     path = tmp_path / "f.lcrec"

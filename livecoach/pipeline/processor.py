@@ -122,12 +122,6 @@ class Pipeline:
         """Process one already-decoded sample (CSV import path)."""
         return self._process(sample.t_s, (sample,), _CSV_CHANNEL.get(type(sample)))
 
-    def feed_all(self, events: Iterable[RawEvent]) -> StepResult | None:
-        last = None
-        for ev in events:
-            last = self.feed(ev)
-        return last
-
     # --------------------------------------------------------------- processing
     def _process(self, t_s: float, decoded: Iterable[Any], channel: str | None) -> StepResult:
         notices: list[Notice] = []

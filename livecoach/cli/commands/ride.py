@@ -58,16 +58,12 @@ def run(args: argparse.Namespace) -> int:
             f"{ride.source}: no sensors configured: set power_address/speed_address, gps_port "
             "or mcu_port in [sensors] (see `livecoach scan`)"
         )
-    inbox: list[str] = []
-    live_ref: list[LiveLoop] = []
+    live = LiveLoop(ride, plan, sources)
 
     def on_warning(text: str) -> None:
-        # Called from the recorder's writer thread: hand it to the loop.
+        # Called from the recorder's writer thread: post_warning is thread-safe.
         print(f"livecoach ride: {text}", file=sys.stderr)
-        if live_ref:
-            live_ref[0].post_warning(text)
-        else:
-            inbox.append(text)
+        live.post_warning(text)
 
     sinks = build_sinks(
         ride, plan, record=not args.no_record, recording_dir=args.recordings,
@@ -75,7 +71,10 @@ def run(args: argparse.Namespace) -> int:
         audio=False if args.mute else None, web=False if args.no_web else None,
         on_warning=on_warning,
     )
+    live.sinks.extend(sinks.sinks)
     print_warnings(sinks)
+    for text in sinks.warnings:
+        live.post_warning(text)
     if sinks.recording_path is not None:
         print(f"recording to {sinks.recording_path}", file=sys.stderr)
 
@@ -87,10 +86,6 @@ def run(args: argparse.Namespace) -> int:
                 loop.add_signal_handler(sig, stop.set)
             except (NotImplementedError, RuntimeError):
                 pass
-        live = LiveLoop(ride, plan, sources, sinks.sinks)
-        live_ref.append(live)
-        for text in inbox + sinks.warnings:
-            live.post_warning(text)
         stats = await live.run(stop, duration_s=args.duration)
         print(f"livecoach ride: {stats.events} events processed", file=sys.stderr)
 
