@@ -81,7 +81,9 @@ def test_rider_below_plan_gets_lift_and_lower_prediction(ride, plan):
     names = [n.data["cue"] for o in outs for n in o.notices if n.kind == NOTICE_CUE]
     assert "lift" in names
     mid = [o for o in outs if o.replanned and 3000.0 < (o.t_s or 0) * 0 + _d(o, traj) < 3500.0]
-    assert mid and all(o.target_power_w == pytest.approx(ride.rider.cp_w, abs=1.0) for o in mid)
+    # The re-plan holds CP there; the target aims hold_under_cp_pct (default 1.5 %) under it.
+    held_w = ride.rider.cp_w * (1.0 - CoachConfig().hold_under_cp_pct / 100.0)
+    assert mid and all(o.target_power_w == pytest.approx(held_w, abs=1.0) for o in mid)
 
 
 def _d(out, traj):
@@ -152,7 +154,7 @@ def test_replan_failure_gives_one_warning(ride, plan):
         warnings += [n for n in out.notices if n.kind == NOTICE_WARNING]
     assert len(warnings) == 1 and "re-plan failed" in warnings[0].text
     assert out.predicted_trap_speed_mps is None
-    assert out.target_power_w == pytest.approx(plan.at(300.0).target_power_w)
+    assert out.target_power_w == pytest.approx(coach._hold_target(plan.at(300.0).target_power_w))
 
 
 def test_in_trap_prediction_uses_elapsed_time(ride, plan):
@@ -164,3 +166,41 @@ def test_in_trap_prediction_uses_elapsed_time(ride, plan):
     assert out.cue == CUE_TRAP
     assert out.replanned
     assert 25.0 < out.predicted_trap_speed_mps < 35.0
+
+
+def test_hold_at_cp_aims_under_cp_and_other_powers_are_kept(ride, plan):
+    cp = ride.rider.cp_w
+    coach = LiveCoach(ride, plan, CoachConfig(hold_under_cp_pct=2.0))
+    assert coach._hold_target(cp) == pytest.approx(cp * 0.98)
+    assert coach._hold_target(cp * 1.015) == pytest.approx(cp * 0.98)     # within the margin
+    assert coach._hold_target(cp * 1.05) == pytest.approx(cp * 1.05)      # a planned spend stays
+    assert coach._hold_target(cp * 0.90) == pytest.approx(cp * 0.90)      # an easy stretch stays
+    exact = LiveCoach(ride, plan, CoachConfig(hold_under_cp_pct=0.0))
+    assert exact._hold_target(cp) == cp
+    # In the closing effort the target is the power available, never lowered.
+    d = plan.final_effort_m + 50.0
+    out = coach.update(250.0, d, 28.0, 800.0, 15000.0, 0.03, 0.0035)
+    available = cp + (ride.rider.pmax_w - cp) * 15000.0 / ride.rider.w_prime_j
+    assert out.cue == CUE_GO
+    assert out.target_power_w == pytest.approx(available * (1.0 + coach.config.final_effort_headroom_pct / 100.0))
+
+
+def test_standby_gives_the_start_target_before_any_position(ride, plan):
+    coach = LiveCoach(ride, plan)
+    out = coach.standby(3.0)
+    assert out.t_s == 3.0 and not out.replanned and out.notices == ()
+    assert out.target_power_w == pytest.approx(coach._hold_target(plan.at(0.0).target_power_w))
+    assert coach.replans == 0 and coach.rejected == 0
+
+
+def test_pipeline_shows_the_start_target_on_the_start_line(ride, plan):
+    from livecoach.pipeline.processor import Pipeline
+    from livecoach.stream.events import CH_TICK, RawEvent
+
+    pipe = Pipeline(ride, plan, keep_for_batch=False)
+    st = pipe.feed(RawEvent(0.25, CH_TICK, b"")).state
+    assert st.distance_m is None                      # nothing measured yet
+    assert st.target_power_w == pytest.approx(pipe.coach.standby(0.25).target_power_w)
+    assert st.target_power_w > 0.0
+    # Without a plan there is nothing to show.
+    assert Pipeline(ride, None).feed(RawEvent(0.25, CH_TICK, b"")).state.target_power_w is None

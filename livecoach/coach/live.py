@@ -204,9 +204,9 @@ class LiveCoach:
             available = r.cp_w + (r.pmax_w - r.cp_w) * min(max(w, 0.0), r.w_prime_j) / r.w_prime_j
             target = available * (1.0 + self.config.final_effort_headroom_pct / 100.0)
         elif self._replan is not None:
-            target = self._replan.power_at(d)
+            target = self._hold_target(self._replan.power_at(d))
         else:
-            target = point.target_power_w
+            target = self._hold_target(point.target_power_w)
         changed = self.cues.update(t_s, rolling=rolling, phase_cue=phase_cue,
                                    power_w=self._power_avg_w, target_w=target)
         cue = self.cues.cue
@@ -234,11 +234,35 @@ class LiveCoach:
         self._output = out
         return out
 
+    def _hold_target(self, power_w: float) -> float:
+        """A planned hold at critical power aimed ``hold_under_cp_pct`` under CP (W).
+
+        Under the differential W' balance (Skiba et al. 2015) a surge above CP
+        spends W' one for one while a dip below it recovers only in proportion
+        to the W' already spent, so with W' nearly full a rider wandering a few
+        per cent around CP loses W' steadily; aiming a little under CP keeps most
+        of it for the closing effort. Powers further than that from CP are kept.
+        """
+        cp_w = self.ride.rider.cp_w
+        margin_w = cp_w * self.config.hold_under_cp_pct / 100.0
+        if margin_w > 0.0 and abs(power_w - cp_w) <= margin_w:
+            return cp_w - margin_w
+        return power_w
+
+    def standby(self, t_s: float) -> CoachOutput:
+        """The output before the first measured position (on the start line).
+
+        The plan's starting target (and the current cue), so the rider sees
+        what to push from the first pedal stroke; nothing is updated.
+        """
+        return self._idle(t_s)
+
     def _idle(self, t_s: float) -> CoachOutput:
         point = self.plan.at(0.0)
         cue = self.cues.cue
         return CoachOutput(
-            t_s=t_s, target_power_w=point.target_power_w, planned_speed_mps=point.planned_speed_mps,
+            t_s=t_s, target_power_w=self._hold_target(point.target_power_w),
+            planned_speed_mps=point.planned_speed_mps,
             planned_power_w=point.target_power_w,
             planned_w_prime_balance_j=point.planned_w_prime_balance_j, cue=cue,
             cue_text=CUE_TEXT[cue], predicted_trap_speed_mps=None,

@@ -40,6 +40,13 @@ class CoachConfig:
         "balance) plus this much, so a rider following the number leaves nothing unused",
         unit="%", lo=0.0, hi=100.0,
     )
+    hold_under_cp_pct: float = setting(
+        1.5, doc="where the plan holds critical power, the target is this much under CP: a "
+        "rider's power wanders a few per cent around any target, every surge above CP spends "
+        "W' and, with W' nearly full, the dips below CP win almost none back (Skiba 2015 "
+        "recovery is proportional to the W' spent); 0 follows the plan exactly",
+        unit="%", lo=0.0, hi=10.0,
+    )
     cda_bounds_factor: float = setting(
         2.0, doc="re-plans use the live CdA clamped to prior / f .. prior * f", lo=1.0, hi=10.0
     )
