@@ -158,6 +158,15 @@ class Simulation:
         if self.mcu is not None:
             self.mcu.start(0.0, self.outbox)
         summ.w_prime_min_j = self.rider.w_bal_j
+        if self.rider.follows_coach and self.controller is not None and sc.run.tick_hz > 0.0:
+            # The module is on at the start line before the rider pushes off: one
+            # tick lets it show its starting target, which the rider then follows
+            # (without it the rider's first target would be the scripted profile's).
+            self.outbox.push_raw(0.0, CH_TICK, b"")
+            for ev in self.outbox.pop_until(0.0):
+                self._feed_controller(ev)
+                self.events_out += 1
+                yield ev
         k = 0
         reason = ""
         while True:
