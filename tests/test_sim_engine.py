@@ -73,6 +73,33 @@ def test_the_rider_follows_the_controllers_target_with_the_human_lag():
         assert power[i] == pytest.approx(expected, rel=0.01)
 
 
+def test_in_coach_mode_the_rider_starts_on_the_modules_start_target():
+    class StartLine:
+        """Says 310 W from the very first event (as the coach's standby output does)."""
+
+        def __init__(self) -> None:
+            self.events = []
+
+        def feed(self, event):
+            self.events.append(event)
+            return SimpleNamespace(state=SimpleNamespace(target_power_w=310.0), notices=())
+
+    data = {
+        "scenario": {"seed": 5, "max_time_s": 6.0},
+        "ride_inline": _ride(0.0, 0.0, 0.0),
+        "rider": {"mode": "coach", "profile": [[0.0, 620.0]], "noise_pct": 0.0, "lag_s": 1.0},
+        "weather": {"gust_rms_mps": 0.0},
+    }
+    ctrl = StartLine()
+    run = simulate(parse_scenario_dict(data, "start line test"), controller=ctrl)
+    first = ctrl.events[0]
+    assert first.t_s == 0.0 and first.channel == "tick" and run.events[0] == first
+    target = np.asarray(run.truth["target_power_w"])
+    power = np.asarray(run.truth["power_w"])
+    assert np.all(target[:-1] == 310.0)        # the scripted 620 W is never used (last row: the end state)
+    assert power[0] == pytest.approx(310.0)
+
+
 @settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow],
           phases=[Phase.explicit, Phase.reuse, Phase.generate])     # no slow shrinking
 @given(
