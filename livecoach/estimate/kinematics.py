@@ -13,7 +13,15 @@ minimum-delay filter, Mills 1991, IEEE Trans. Commun. 39:1482).
 CSV path: speed samples (and distance, when given) on the receive clock;
 the node speed is a local quadratic fit of speed against time.
 
-GPS speed stands in for the display when the wheel sensor falls silent.
+A sensor restart (brown-out, battery change) breaks the counter and the
+event clock: the interval that spans the restart counts only the
+revolutions since it and is set aside. Once the next interval confirms a
+plausible speed, the track restarts at the first sample after the break,
+its distance carried over the break by dead reckoning (trapezoid of the
+speeds on both sides), so the distance never steps back or jumps.
+
+The distance and speed shown to the rider and the coach, bridged over
+wheel gaps, come from :mod:`livecoach.estimate.odometry`.
 """
 
 from __future__ import annotations
@@ -28,8 +36,13 @@ CSC_TIME_RESOLUTION_S = 1.0 / 1024.0
 EVENT_TIME_SD_S = CSC_TIME_RESOLUTION_S / math.sqrt(12.0)
 #: How fast the clock-offset estimate may creep up (sensor clock running slow), s/s.
 CLOCK_DRIFT_ALLOWANCE = 2.0e-4
+#: Wheel notifications missing this long mean a gap (not a slow wheel, which still notifies), s.
+SILENCE_S = 1.5
 #: Consecutive rejected wheel samples after which the track restarts from the new value.
 RESYNC_AFTER = 3
+#: Longest mismatch of the sensor-clock and receive-clock gaps across a break for the
+#: sensor clock to be taken as continuous, s.
+CLOCK_BREAK_S = 1.0
 
 
 class PointTrack:
@@ -118,7 +131,17 @@ class WheelTrack(PointTrack):
         self._last_rx_s: float | None = None
         self._offset_s: float | None = None
         self._bad_run = 0
+        self._pending: list[tuple[float, int, float]] = []  # rejected run: (rx s, revs, event s)
         self.last_new_point_rx_s: float | None = None
+        #: Receive time of the last notification that was usable (a new point, or "no new
+        #: event"), s: rejected notifications say nothing about the wheel.
+        self.last_ok_rx_s: float | None = None
+        self.resyncs = 0
+
+    @property
+    def in_break(self) -> bool:
+        """Rejected samples since the last accepted one: the wheel is not to be trusted now."""
+        return self._bad_run > 0
 
     def feed(self, t_s: float, revolutions: int, event_time_s: float) -> str | None:
         """Take one wheel sample. Returns a rejection reason, or None if accepted.
@@ -138,11 +161,16 @@ class WheelTrack(PointTrack):
         self.t_offset_s = self._offset_s
         if self._revs0 is None:
             self._start(revolutions, event_time_s, t_s)
+            self.last_ok_rx_s = t_s
             return None
         d_revs = revolutions - self._last_revs  # type: ignore[operator]
         d_evt = event_time_s - self._last_event_s  # type: ignore[operator]
         if d_revs == 0 and d_evt == 0.0:
+            if not self._bad_run:
+                self.last_ok_rx_s = t_s
             return None  # no new event: stopped or slow
+        if self._pending and self._pending[-1][1:] == (revolutions, event_time_s):
+            return None  # the rejected sample again (a repeated notification)
         reason = None
         if d_revs < 0:
             reason = "wheel_counter_backwards"
@@ -162,21 +190,95 @@ class WheelTrack(PointTrack):
                     reason = "wheel_implausible_jump"
         if reason is not None:
             self._bad_run += 1
+            self._pending.append((t_s, revolutions, event_time_s))
+            if self._confirmed_restart():
+                return None
             if self._bad_run >= RESYNC_AFTER:
-                # Several in a row: the sensor restarted or the data really changed.
-                d_now = self.ds[-1] if self.ds else self._d_origin_m
-                self.reset()
-                self._bad_run = 0
-                self._start(revolutions, event_time_s, t_s, d_now)
+                # Several in a row, not consistent among themselves either: restart
+                # from the newest, the distance carried over at the last speed.
+                first = self._pending[-1]
+                self._restart_at(first, self._bridge_m(first[0], None, t_s_based=True), True)
                 return reason + "_resync"
             return reason
         self._bad_run = 0
+        self._pending.clear()
+        self._append(t_s, revolutions, event_time_s)
+        return None
+
+    def _append(self, t_s: float, revolutions: int, event_time_s: float) -> None:
         self._last_revs = revolutions
         self._last_event_s = event_time_s
         self.ts.append(event_time_s)
         self.ds.append(self._d_origin_m + (revolutions - self._revs0) * self.circumference_m)
+        self._note_point(t_s)
+
+    def _note_point(self, t_s: float) -> None:
         self.last_new_point_rx_s = t_s
-        return None
+        self.last_ok_rx_s = t_s
+
+    def _speed(self, a: tuple[float, int, float], b: tuple[float, int, float]) -> float | None:
+        """Speed between two samples (rx s, revs, event s), m/s; None if not a plausible interval."""
+        d_revs, d_evt = b[1] - a[1], b[2] - a[2]
+        if d_revs <= 0 or d_evt <= 0.0:
+            return None
+        v = d_revs * self.circumference_m / d_evt
+        return v if v <= 60.0 else None
+
+    def _last_speed(self) -> float | None:
+        if len(self.ts) < 2:
+            return None
+        dt = self.ts[-1] - self.ts[-2]
+        return (self.ds[-1] - self.ds[-2]) / dt if dt > 0.0 else None
+
+    def _confirmed_restart(self) -> bool:
+        """The last two rejected samples make a plausible interval whose speed fits the
+        speed before the break: the interval into the break was the bad one (a sensor
+        restart counts only the revolutions since it). Restart the track at the first
+        of the two, its distance carried over the break."""
+        if len(self._pending) < 2 or not self.ds:
+            return False
+        a, b = self._pending[-2], self._pending[-1]
+        v_new = self._speed(a, b)
+        v_old = self._last_speed()
+        if v_new is None or v_old is None or self.last_new_point_rx_s is None:
+            return False
+        elapsed = b[0] - self.last_new_point_rx_s
+        if abs(v_new - v_old) > self.max_accel_mps2 * elapsed + 0.5:
+            return False
+        # The sensor clock is continuous over the break when its gap matches the receive-clock gap.
+        clock_ok = abs((a[2] - self._last_event_s) - (a[0] - self.last_new_point_rx_s)) <= CLOCK_BREAK_S
+        self._restart_at(a, self._bridge_m(a[0], v_new, t_s_based=not clock_ok, evt_s=a[2]),
+                         not clock_ok)
+        self._append(*b)
+        return True
+
+    def _bridge_m(self, rx_s: float, v_new: float | None, *, t_s_based: bool,
+                  evt_s: float | None = None) -> float:
+        """Distance over a break up to a sample (receive time ``rx_s``, event time ``evt_s``):
+        the trapezoid of the speeds before and after it (the last speed when the one after is
+        unknown) over the sensor-clock gap, or the receive-clock gap when the sensor clock broke."""
+        v_old = self._last_speed() or 0.0
+        v_new = v_old if v_new is None else v_new
+        if t_s_based or evt_s is None:
+            last_rx = self.last_new_point_rx_s if self.last_new_point_rx_s is not None else rx_s
+            gap = rx_s - last_rx
+        else:
+            gap = evt_s - self._last_event_s  # type: ignore[operator]
+        return self.ds[-1] + 0.5 * (v_old + v_new) * max(gap, 0.0)
+
+    def _restart_at(self, sample: tuple[float, int, float], d_origin_m: float, clock_broke: bool) -> None:
+        rx_s, revolutions, event_time_s = sample
+        if clock_broke:
+            # A new sensor clock: map it afresh (lower envelope from this sample on).
+            k = self._pending.index(sample) if sample in self._pending else len(self._pending)
+            lags = [p[0] - p[2] for p in self._pending[k:]] or [rx_s - event_time_s]
+            self._offset_s = min(lags)
+            self.t_offset_s = self._offset_s
+        self.reset()
+        self._bad_run = 0
+        self._pending.clear()
+        self.resyncs += 1
+        self._start(revolutions, event_time_s, rx_s, d_origin_m)
 
     def _start(self, revolutions: int, event_time_s: float, t_s: float, d_origin_m: float = 0.0) -> None:
         self._revs0 = revolutions
@@ -185,7 +287,7 @@ class WheelTrack(PointTrack):
         self._last_event_s = event_time_s
         self.ts.append(event_time_s)
         self.ds.append(d_origin_m)
-        self.last_new_point_rx_s = t_s
+        self._note_point(t_s)
 
     def node(self, i: int) -> tuple[float, float, float] | None:
         """(speed m/s, its variance (m/s)^2, acceleration m/s^2) at point ``i``

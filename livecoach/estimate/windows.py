@@ -24,6 +24,7 @@ import math
 from typing import Any
 
 from livecoach.estimate.kinematics import PointTrack, SpeedTrack, WheelTrack
+from livecoach.estimate.odometry import Odometer
 from livecoach.estimate.power import PowerTrack
 from livecoach.estimate.records import EnergyWindow
 from livecoach.estimate.settings import EstimatorConfig
@@ -109,8 +110,7 @@ class WindowBuilder:
         self.grade_gs: list[float] = []
         self.gps_t_s: float | None = None
         self.gps_speed_mps: float | None = None
-        self._gps_extra_m = 0.0
-        self._gps_ref: tuple[float, float] | None = None  # (t_s, wheel distance) at fallback start
+        self.odometer: Odometer | None = None  # shown distance and speed (wheel path)
         self.out: list[EnergyWindow] = []
         self.rejected: dict[str, int] = {}
         self.samples_used = 0
@@ -133,6 +133,12 @@ class WindowBuilder:
 
     def feed(self, s: Any) -> None:
         """Take one sample of any type (unused types are ignored)."""
+        self._feed(s)
+        odo = self.odometer
+        if odo is not None and self.track is self.wheel:
+            odo.update(self.t_s, self.gps_t_s, self.gps_speed_mps, self._disp_v, self._disp_a)
+
+    def _feed(self, s: Any) -> None:
         kind = type(s)
         t = s.t_s
         if isinstance(t, (int, float)) and math.isfinite(t) and t > self.t_s:
@@ -151,6 +157,7 @@ class WindowBuilder:
                 self.wheel = WheelTrack(self.circumference_m, self.cfg.max_accel_mps2)
                 self.wheel.source = s.source
                 self.track = self.wheel
+                self.odometer = Odometer(self.wheel, self.cfg.stale_s, GPS_FRESH_S)
             if s.source != self.wheel.source:
                 return  # one wheel source at a time (the first one seen)
             n_before = self.wheel.end
@@ -160,7 +167,6 @@ class WindowBuilder:
                 return
             self.samples_used += 1
             if self.wheel.end > n_before:
-                self._gps_ref = None
                 f = self.wheel.recent_fit()
                 if f is not None:
                     self._disp_v, self._disp_a = f.c1, 2.0 * f.c2
@@ -193,8 +199,6 @@ class WindowBuilder:
                 self.count("altitude_implausible")
         elif kind is S.GpsSample:
             if s.valid and s.speed_mps is not None and math.isfinite(s.speed_mps) and 0.0 <= s.speed_mps < 60.0:
-                if self.gps_t_s is not None and self._gps_ref is not None and self.gps_speed_mps is not None:
-                    self._gps_extra_m += 0.5 * (self.gps_speed_mps + s.speed_mps) * (t - self.gps_t_s)
                 self.gps_t_s = t
                 self.gps_speed_mps = s.speed_mps
         elif kind is S.LinkSample:
@@ -486,36 +490,13 @@ class WindowBuilder:
             if gps_fresh:
                 out.update(speed_mps=self.gps_speed_mps, speed_source="gps", speed_stale=False)
             return out
+        odo = self.odometer
+        if tr is self.wheel and odo is not None:
+            out.update(distance_m=odo.distance_m(t_s), speed_mps=odo.speed_mps,
+                       accel_mps2=odo.accel_mps2, speed_source=odo.source, speed_stale=odo.stale(t_s))
+            return out
         d_last = tr.ds[-1]
         last_rx = tr.last_new_point_rx_s if tr.last_new_point_rx_s is not None else t_s  # type: ignore[attr-defined]
-        if tr is self.wheel and self.wheel is not None:
-            silent = self.wheel._last_rx_s is None or t_s - self.wheel._last_rx_s > self.cfg.stale_s
-            t_evt = tr.ts[-1] + tr.t_offset_s
-            v = self._disp_v if self._disp_v is not None else 0.0
-            # The last notification said: no wheel event between t_evt and its arrival.
-            rx = self.wheel._last_rx_s if self.wheel._last_rx_s is not None else t_s
-            quiet = rx - t_evt
-            # Slowing or stopped: no wheel event for clearly longer than one
-            # revolution at the last speed. The margin covers the jitter of
-            # the event-clock offset and of the notification latency (a
-            # quiet time just over one period is normal at speed).
-            if quiet > 0.0 and (v <= 0.0 or quiet > 1.5 * self.circumference_m / v + 0.1):
-                v = max(0.0, min(v, self.circumference_m / quiet))
-            since = max(t_s - t_evt, 0.0)
-            if v < 0.3:
-                v = 0.0
-            if silent and gps_fresh:
-                if self._gps_ref is None:
-                    self._gps_ref = (t_s, d_last)
-                    self._gps_extra_m = 0.0
-                out.update(distance_m=d_last + self._gps_extra_m, speed_mps=self.gps_speed_mps,
-                           accel_mps2=None, speed_source="gps", speed_stale=False)
-                return out
-            extra = min(v * since, self.circumference_m)
-            out.update(distance_m=d_last + extra, speed_mps=v,
-                       accel_mps2=self._disp_a if v > 0.0 else 0.0,
-                       speed_source="wheel", speed_stale=silent)
-            return out
         stale = t_s - last_rx > self.cfg.stale_s
         out.update(distance_m=d_last, speed_mps=self._disp_v, accel_mps2=None,
                    speed_source="speed", speed_stale=stale)
