@@ -199,12 +199,19 @@ def test_wheel_sensor_restart_is_absorbed(run):
     assert changed.reset_base is not None and changed.reset_base[0] > 1000
     t = RESET_AT_S
     distances = [s.distance_m for s in col.between(t - 3.0, t + 8.0)]
-    assert all(b >= a - 2.0 for a, b in zip(distances, distances[1:]))
+    assert all(b >= a for a, b in zip(distances, distances[1:]))   # never steps back
+    # and never jumps: over every half second it covers at most 10 % more than the speed
+    # shown (the distance is that of the newest sample, so single states can lag an event)
+    shown = col.between(t - 3.0, t + 8.0)
+    for i, a in enumerate(shown):
+        b = next((x for x in shown[i:] if x.t_s >= a.t_s + 0.5), None)
+        if b is not None:
+            assert b.distance_m - a.distance_m <= 1.1 * max(a.speed_mps, b.speed_mps) * (b.t_s - a.t_s)
     before = col.between(t - 2.0, t)[-1]
     v = before.speed_mps
     later = col.between(t + 4.0, t + 10.0)
     assert later and all(not s.speed_stale and 0.7 * v < s.speed_mps < 1.3 * v for s in later)
-    # the revolutions counted after the restart still count: the distance catches up
-    # (only those between the last report and the restart are lost, about half a second)
-    assert later[0].distance_m - before.distance_m > 0.8 * v * (later[0].t_s - before.t_s)
+    # the revolutions counted after the restart still count, and the interval across the
+    # restart is bridged at the speeds on both sides: no distance is lost
+    assert later[0].distance_m - before.distance_m > 0.97 * v * (later[0].t_s - before.t_s)
     assert loop.pipeline.decoder.stats()[CH_CSC]["reasons"] == {"counter went backwards": 1}
