@@ -73,10 +73,10 @@ def test_coach_paces_close_to_the_optimum_and_beats_constant_power():
     optimum = make_plan(truth_ride(sc)).trap_speed_mps
     ctrl = _TruthFedCoach(sc.ride, make_plan(sc.ride), 0.0285, 0.0032)
     coached = _run(sc, ctrl).trap_speed_mps
-    # Issue 6 floor is 99.5 % for a rider who follows the coach; this simulated
-    # rider wobbles 3 % rms around the target (each swing above CP costs W' that
-    # the Skiba 2015 recovery barely returns), which costs about 0.6 % here.
-    assert coached >= 0.99 * optimum
+    # Issue 6 floor is 99.5 % (a bench mean, benchmarks/pacing_bench.py); this
+    # simulated rider wobbles 3 % rms around the target (each swing above CP costs
+    # W' that the Skiba 2015 recovery barely returns). Measured here: 99.51 %.
+    assert coached >= 0.994 * optimum
     assert ctrl.cues[-3:] == ["go", "trap", "done"]
     steady_w = constant_power_strategy(truth_ride(sc)).power_w
     steady = _run(_scenario({**patch, "rider": {"mode": "scripted", "profile": [[0, steady_w]]}}))
@@ -105,3 +105,20 @@ def test_prior_15_percent_off_without_estimates_still_within_one_percent():
     optimum = make_plan(truth_ride(sc)).trap_speed_mps
     coached = _run(sc, _TruthFedCoach(sc.ride, make_plan(sc.ride), 0.0328, 0.0032)).trap_speed_mps
     assert coached >= 0.99 * optimum
+
+
+def test_aiming_under_cp_in_the_hold_pays_for_a_wobbly_rider():
+    # Same seed, same wobble: holding 1.5 % under CP (the default) against following
+    # the plan's CP exactly. The rider's 3 % wobble spends less W' before the closing
+    # effort, so the trap speed is higher (measured +0.06 %: 99.45 % -> 99.51 %).
+    from livecoach.coach import CoachConfig
+    from sim.scenario import truth_ride
+
+    sc = _scenario({"ride_patch": {"vehicle": {"cda_m2": 0.0285, "crr": 0.0032}}})
+    optimum = make_plan(truth_ride(sc)).trap_speed_mps
+    speeds = {}
+    for hold_pct in (0.0, 1.5):
+        ctrl = _TruthFedCoach(sc.ride, make_plan(sc.ride), 0.0285, 0.0032)
+        ctrl.coach.config = CoachConfig(hold_under_cp_pct=hold_pct)
+        speeds[hold_pct] = _run(sc, ctrl).trap_speed_mps / optimum
+    assert speeds[1.5] > speeds[0.0] + 0.0003
