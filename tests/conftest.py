@@ -52,3 +52,24 @@ def mounted(tmp_path):
     yield make
     for mnt in reversed(points):
         subprocess.run(["umount", "-l", str(mnt)], capture_output=True)
+
+
+@pytest.fixture
+def failing_card(tmp_path, mounted):
+    """An 8 MiB ext4 card image mounted ``errors=remount-ro`` (as an SD card that
+    turns read-only on a storage error): yields (mount point, trigger file).
+    Writing to the trigger raises a file-system error on purpose (Linux ext4
+    sysfs interface, Documentation/ABI/testing/sysfs-fs-ext4). Skips where
+    mkfs.ext4, mounting or the trigger is not available."""
+    image = tmp_path / "card.img"
+    with open(image, "wb") as f:
+        f.truncate(8 << 20)
+    if subprocess.run(["mkfs.ext4", "-q", "-F", str(image)], capture_output=True).returncode != 0:
+        pytest.skip("mkfs.ext4 not available")
+    mnt = mounted("card", ["-o", "loop,errors=remount-ro", str(image)])
+    device = subprocess.run(["findmnt", "-n", "-o", "SOURCE", str(mnt)], capture_output=True,
+                            text=True).stdout.strip()
+    trigger = Path("/sys/fs/ext4") / Path(device).name / "trigger_fs_error"
+    if not trigger.exists():
+        pytest.skip("this kernel has no ext4 trigger_fs_error")
+    return mnt, trigger

@@ -84,11 +84,19 @@ RADIO: dict[str, Peripheral] = {}
 
 
 class RigClient(BaseBleakClient):
-    """Test backend for bleak's front end: the part of a client backend the source uses."""
+    """Test backend for bleak's front end: the part of a client backend the source uses.
+
+    The peripherals in range come from :meth:`devices` (the rig's ``RADIO``);
+    tests/test_sources_ble.py subclasses it with a radio of its own.
+    """
 
     def __init__(self, address_or_ble_device: Any, **kwargs: Any) -> None:
         super().__init__(address_or_ble_device, **kwargs)
         self.connected = False
+
+    def devices(self) -> dict[str, Any]:
+        """Address -> peripheral of the radio this client talks through."""
+        return RADIO
 
     @property
     def mtu_size(self) -> int:
@@ -96,7 +104,7 @@ class RigClient(BaseBleakClient):
 
     @property
     def name(self) -> str:
-        return RADIO[self.address].kind
+        return self.devices()[self.address].kind
 
     @property
     def is_connected(self) -> bool:
@@ -104,7 +112,7 @@ class RigClient(BaseBleakClient):
 
     async def connect(self, pair: bool, **kwargs: Any) -> None:
         await asyncio.sleep(0)
-        dev = RADIO.get(self.address)
+        dev = self.devices().get(self.address)
         if dev is None or not dev.in_range:
             raise BleakDeviceNotFoundError(self.address, f"Device with address {self.address} was not found.")
         _ch, service_uuid, char_uuid = SENSOR_KINDS[dev.kind]
@@ -117,17 +125,17 @@ class RigClient(BaseBleakClient):
         dev.client = self
 
     async def disconnect(self) -> None:
-        dev = RADIO.get(self.address)
+        dev = self.devices().get(self.address)
         if dev is not None and dev.client is self:
             dev.client = None
             dev.callbacks.clear()
         self.connected = False
 
     async def start_notify(self, characteristic: BleakGATTCharacteristic, callback: Any, **kwargs: Any) -> None:
-        RADIO[self.address].callbacks.append(callback)
+        self.devices()[self.address].callbacks.append(callback)
 
     async def stop_notify(self, characteristic: BleakGATTCharacteristic) -> None:
-        RADIO[self.address].callbacks.clear()
+        self.devices()[self.address].callbacks.clear()
 
     async def pair(self, *args: Any, **kwargs: Any) -> None:
         raise NotImplementedError

@@ -191,21 +191,11 @@ def test_disk_full_during_the_live_job(tmp_path, mounted):
 
 
 @pytest.mark.slow
-def test_card_turns_read_only_during_the_live_job(tmp_path, mounted):
+def test_card_turns_read_only_during_the_live_job(tmp_path, failing_card):
     # ext4 mounted errors=remount-ro turns read-only on a storage error, as a
     # failing SD card does; the kernel's trigger_fs_error file raises one
     # (Linux ext4 sysfs interface, Documentation/ABI/testing/sysfs-fs-ext4).
-    image = tmp_path / "card.img"
-    with open(image, "wb") as f:
-        f.truncate(8 << 20)
-    if subprocess.run(["mkfs.ext4", "-q", "-F", str(image)], capture_output=True).returncode != 0:
-        pytest.skip("mkfs.ext4 not available")
-    mnt = mounted("card", ["-o", "loop,errors=remount-ro", str(image)])
-    device = subprocess.run(["findmnt", "-n", "-o", "SOURCE", str(mnt)], capture_output=True,
-                            text=True).stdout.strip()
-    trigger = Path("/sys/fs/ext4") / Path(device).name / "trigger_fs_error"
-    if not trigger.exists():
-        pytest.skip("this kernel has no ext4 trigger_fs_error")
+    mnt, trigger = failing_card
 
     def fail_card(_path: Path) -> None:
         time.sleep(1.5)

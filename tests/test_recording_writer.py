@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import errno
 import os
-import subprocess
 import threading
 import time
 from pathlib import Path
@@ -241,21 +240,11 @@ def test_read_only_injected_during_recording(tmp_path):
 
 
 @pytest.mark.slow
-def test_read_only_during_recording_on_a_real_ext4(tmp_path, mounted):
+def test_read_only_during_recording_on_a_real_ext4(tmp_path, failing_card):
     # ext4 mounted with errors=remount-ro turns read-only on a storage error,
     # as an SD card failing mid-run does; the kernel's trigger_fs_error file
     # raises such an error on purpose (Linux ext4 sysfs interface).
-    image = tmp_path / "card.img"
-    with open(image, "wb") as f:
-        f.truncate(8 << 20)
-    if subprocess.run(["mkfs.ext4", "-q", "-F", str(image)], capture_output=True).returncode != 0:
-        pytest.skip("mkfs.ext4 not available")
-    mnt = mounted("card", ["-o", "loop,errors=remount-ro", str(image)])
-    device = subprocess.run(["findmnt", "-n", "-o", "SOURCE", str(mnt)], capture_output=True,
-                            text=True).stdout.strip()
-    trigger = Path("/sys/fs/ext4") / Path(device).name / "trigger_fs_error"
-    if not trigger.exists():
-        pytest.skip("this kernel has no ext4 trigger_fs_error")
+    mnt, trigger = failing_card
     warnings: list[str] = []
     path = mnt / "ride.lcrec"
     rec = Recorder(path, HEADER, flush_interval_s=0.05, on_warning=warnings.append)

@@ -13,11 +13,7 @@ import tomllib
 from typing import Any
 
 import pytest
-from bleak.backends.characteristic import BleakGATTCharacteristic
-from bleak.backends.client import BaseBleakClient
 from bleak.backends.scanner import AdvertisementData, BaseBleakScanner
-from bleak.backends.service import BleakGATTService, BleakGATTServiceCollection
-from bleak.exc import BleakDeviceNotFoundError
 
 from livecoach.cli.commands.init import example_ride_text
 from livecoach.cli.main import main
@@ -32,6 +28,7 @@ from livecoach.sources.scan import scan_sensors
 from livecoach.sources.serial_line import SerialLineSource
 from livecoach.stream.events import CH_CSC, CH_LINK, CH_POWER, RawEvent
 from livecoach.stream.samples import LinkSample, PowerSample, WheelSample
+from tests.live_rig import RigClient
 
 POWER = "C4:7A:11:00:00:01"
 CSC = "C4:7A:11:00:00:02"
@@ -72,70 +69,19 @@ class Radio:
 RADIO = Radio()
 
 
-class RadioClient(BaseBleakClient):
-    """Test backend: the part of a bleak client backend the source uses."""
+class RadioClient(RigClient):
+    """The rig's test backend (tests/live_rig.py) on this file's radio, logging connects."""
 
-    def __init__(self, address_or_ble_device: Any, **kwargs: Any) -> None:
-        super().__init__(address_or_ble_device, **kwargs)
-        self.connected = False
-
-    @property
-    def mtu_size(self) -> int:
-        return 23
+    def devices(self) -> dict[str, Any]:
+        return RADIO.devices
 
     @property
     def name(self) -> str:
         return RADIO.devices[self.address].name
 
-    @property
-    def is_connected(self) -> bool:
-        return self.connected
-
     async def connect(self, pair: bool, **kwargs: Any) -> None:
         RADIO.connect_log.append(self.address)
-        await asyncio.sleep(0)
-        dev = RADIO.devices.get(self.address)
-        if dev is None or not dev.in_range:
-            raise BleakDeviceNotFoundError(self.address, f"Device with address {self.address} was not found.")
-        _ch, service_uuid, char_uuid = SENSOR_KINDS[dev.kind]
-        services = BleakGATTServiceCollection()
-        svc = BleakGATTService(None, 10, service_uuid)
-        services.add_service(svc)
-        services.add_characteristic(BleakGATTCharacteristic(None, 11, char_uuid, ["notify"], lambda: 20, svc))
-        self.services = services
-        self.connected = True
-        dev.client = self
-
-    async def disconnect(self) -> None:
-        dev = RADIO.devices.get(self.address)
-        if dev is not None and dev.client is self:
-            dev.client = None
-            dev.callbacks.clear()
-        self.connected = False
-
-    async def start_notify(self, characteristic: BleakGATTCharacteristic, callback: Any, **kwargs: Any) -> None:
-        RADIO.devices[self.address].callbacks.append(callback)
-
-    async def stop_notify(self, characteristic: BleakGATTCharacteristic) -> None:
-        RADIO.devices[self.address].callbacks.clear()
-
-    async def pair(self, *args: Any, **kwargs: Any) -> None:
-        raise NotImplementedError
-
-    async def unpair(self) -> None:
-        raise NotImplementedError
-
-    async def read_gatt_char(self, characteristic: Any, **kwargs: Any) -> bytearray:
-        raise NotImplementedError
-
-    async def read_gatt_descriptor(self, descriptor: Any, **kwargs: Any) -> bytearray:
-        raise NotImplementedError
-
-    async def write_gatt_char(self, characteristic: Any, data: Any, response: bool) -> None:
-        raise NotImplementedError
-
-    async def write_gatt_descriptor(self, descriptor: Any, data: Any) -> None:
-        raise NotImplementedError
+        await super().connect(pair, **kwargs)
 
 
 async def _next(queue: asyncio.Queue, pred, timeout_s: float = 5.0) -> RawEvent:
