@@ -96,6 +96,9 @@ class LiveDragEstimator:
         self._res: FitResult | None = None
         self._sigma2_ref: float | None = None
         self._t_s = 0.0
+        # live_values(): the estimate part, and the fit result it was made from.
+        self._drag: tuple[float, float, float, float] | None = None
+        self._drag_of: FitResult | None = None
 
     def _new_fit(self, theta0: list[float], cov: list[list[float]], lag_lp: list[float]) -> DragFit:
         return DragFit(theta0, cov, self.lags_s, lag_lp, self.cfg.memory_s,
@@ -305,6 +308,23 @@ class LiveDragEstimator:
             speed_stale=kin["speed_stale"],
             air_density_kgpm3=self.builder.rho_kgpm3,
         )
+
+    def live_values(self) -> tuple[float | None, float | None, float, float, float, float]:
+        """``(distance_m, speed_mps, cda_m2, cda_sd_m2, crr, crr_sd)`` now: the
+        fields of :meth:`snapshot` the pipeline shows after every event, with
+        the same values, without building the whole record. The estimate part
+        changes only when a window is taken, so it is kept until then."""
+        kin = self.builder.kinematics(self._t_s)
+        res = self._res
+        if res is not self._drag_of or self._drag is None:
+            if res is None:
+                drag = (self.theta0[0], math.sqrt(self.prior_cov[0][0]),
+                        self.theta0[1], math.sqrt(self.prior_cov[1][1]))
+            else:
+                drag = (res.theta[0], math.sqrt(max(res.cov[0][0], 0.0)),
+                        res.theta[1], math.sqrt(max(res.cov[1][1], 0.0)))
+            self._drag, self._drag_of = drag, res
+        return (kin["distance_m"], kin["speed_mps"], *self._drag)
 
     def pop_alarms(self) -> list[DragAlarm]:
         """Alarms raised since the last call (oldest first)."""

@@ -14,9 +14,11 @@ after every event was a measurable share of the per-event cost
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from livecoach.pipeline.state import SensorHealth
+from livecoach.stream.builders import positional_builder
 from livecoach.stream.events import CH_CSC, CH_GPS, CH_HEART_RATE, CH_MCU, CH_POWER
 
 #: A channel with no valid value for longer than this is stale, s. Power
@@ -33,6 +35,13 @@ DEFAULT_STALE_AFTER_S: dict[str, float] = {
 
 #: Longest time the counters and ages of a health snapshot may lag, s (event time).
 SNAPSHOT_REFRESH_S = 0.25
+
+#: :meth:`HealthTracker.tick` looks at the channels only from this long before
+#: the earliest time one of them can go stale, s (far above the rounding of
+#: ``t_s - last`` against ``last + limit``, far below any sensor's period).
+_TICK_MARGIN_S = 1e-6
+
+_sensor_health = positional_builder(SensorHealth)
 
 
 @dataclass(slots=True)
@@ -57,6 +66,8 @@ class HealthTracker:
         self._channels: dict[str, _Channel] = {}
         self._cache: tuple[SensorHealth, ...] | None = None
         self._cache_t_s: float | None = None
+        # No channel can go stale before this event time (a lower bound, see tick).
+        self._tick_due_s = math.inf
 
     def _get(self, channel: str) -> _Channel:
         ch = self._channels.get(channel)
@@ -91,6 +102,9 @@ class HealthTracker:
         ch.in_gap = False
         ch.last_valid_t_s = t_s
         ch.accepted += 1
+        due = t_s + ch.limit_s
+        if due < self._tick_due_s:
+            self._tick_due_s = due
         return recovered
 
     def rejected(self, channel: str) -> None:
@@ -107,8 +121,15 @@ class HealthTracker:
         return (t_s - ch.last_valid_t_s) > ch.limit_s or not ch.link_up
 
     def tick(self, t_s: float) -> list[str]:
-        """Mark channels that just went stale; returns their names (once per gap)."""
+        """Mark channels that just went stale; returns their names (once per gap).
+
+        Called after every event: the channels are looked at only once the
+        earliest time one of them can go stale (``last valid + limit``,
+        kept as a lower bound by :meth:`valid`) is near."""
+        if t_s < self._tick_due_s - _TICK_MARGIN_S:
+            return []
         newly = []
+        due = math.inf
         for name, ch in self._channels.items():
             last = ch.last_valid_t_s
             if last is None or ch.in_gap:
@@ -118,6 +139,9 @@ class HealthTracker:
                 ch.gaps += 1
                 newly.append(name)
                 self._cache = None
+            elif last + ch.limit_s < due:
+                due = last + ch.limit_s
+        self._tick_due_s = due
         return newly
 
     def snapshot(self, t_s: float) -> tuple[SensorHealth, ...]:
@@ -131,15 +155,15 @@ class HealthTracker:
             ch = self._channels[name]
             age = None if ch.last_valid_t_s is None else t_s - ch.last_valid_t_s
             out.append(
-                SensorHealth(
-                    channel=name,
-                    link_up=ch.link_up,
-                    stale=self.stale(name, t_s),
-                    age_s=age,
-                    accepted=ch.accepted,
-                    rejected=ch.rejected,
-                    gaps=ch.gaps,
-                    longest_gap_s=max(ch.longest_gap_s, age if (age is not None and ch.in_gap) else 0.0),
+                _sensor_health(  # SensorHealth, by position
+                    name,                                       # channel
+                    ch.link_up,                                 # link_up
+                    self.stale(name, t_s),                      # stale
+                    age,                                        # age_s
+                    ch.accepted,                                # accepted
+                    ch.rejected,                                # rejected
+                    ch.gaps,                                    # gaps
+                    max(ch.longest_gap_s, age if (age is not None and ch.in_gap) else 0.0),  # longest_gap_s
                 )
             )
         self._cache = tuple(out)

@@ -33,6 +33,7 @@ from livecoach.pipeline.state import (
     Notice,
 )
 from livecoach.pipeline.trap import TrapTimer
+from livecoach.stream.builders import positional_builder
 from livecoach.stream.events import CH_CSC, CH_GPS, CH_MCU, CH_POWER, CH_TICK, RawEvent
 from livecoach.stream import samples as S
 
@@ -59,6 +60,12 @@ class StepResult:
 
     state: LiveState
     notices: tuple[Notice, ...]
+
+
+_step_result = positional_builder(StepResult)
+_live_state = positional_builder(LiveState)
+_Rejected, _LinkSample, _PowerSample = S.Rejected, S.LinkSample, S.PowerSample
+_CadenceSample, _HeartRateSample, _AirSample = S.CadenceSample, S.HeartRateSample, S.AirSample
 
 
 class Pipeline:
@@ -103,6 +110,12 @@ class Pipeline:
         self._planned_trap_speed_mps: float | None = getattr(plan, "trap_speed_mps", None)
         self._last_track_point: tuple[float, float] | None = None
         self._alarms: list[str] = []
+        self._last_alarms: tuple[str, ...] = ()     # the last five, as LiveState shows them
+        # Constants of the ride read on every event.
+        self._trap_entry_m = ride.course.trap_entry_m
+        self._w_prime_j = ride.rider.w_prime_j
+        self._vehicle_cda_m2 = ride.vehicle.cda_m2
+        self._vehicle_crr = ride.vehicle.crr
         self._warnings: list[str] = []
         self._state: LiveState = LiveState(t_s=0.0, w_prime_balance_j=self._wbal_j,
                                            w_prime_j=ride.rider.w_prime_j)
@@ -110,13 +123,14 @@ class Pipeline:
     # ------------------------------------------------------------------ feeding
     def feed(self, event: RawEvent) -> StepResult:
         """Process one raw event (any channel). Never raises on bad payloads."""
-        if event.channel == CH_TICK:
+        channel = event.channel
+        if channel == CH_TICK:
             return self._process(event.t_s, (), None)
         try:
             decoded = self.decoder.feed(event)
         except Exception as exc:  # a decoder bug must not stop the loop: count it
-            decoded = [S.Rejected(event.t_s, event.channel, f"decoder error: {type(exc).__name__}: {exc}")]
-        return self._process(event.t_s, decoded, event.channel)
+            decoded = [S.Rejected(event.t_s, channel, f"decoder error: {type(exc).__name__}: {exc}")]
+        return self._process(event.t_s, decoded, channel)
 
     def feed_sample(self, sample: Any) -> StepResult:
         """Process one already-decoded sample (CSV import path)."""
@@ -124,132 +138,151 @@ class Pipeline:
 
     # --------------------------------------------------------------- processing
     def _process(self, t_s: float, decoded: Iterable[Any], channel: str | None) -> StepResult:
-        notices: list[Notice] = []
+        # The hot path of replay (once per event): names are bound locally and
+        # the records are built by position (see livecoach.stream.builders).
         if not math.isfinite(t_s):
             self._reject("non-finite receive time")
-            return StepResult(self._state, ())
-        if self._last_t_s is not None and t_s < self._last_t_s:
+            return _step_result(self._state, ())
+        last_t_s = self._last_t_s
+        if last_t_s is not None and t_s < last_t_s:
             # Receive times come from one monotonic clock; an earlier one is a
             # corrupt record. Keep the clock monotonic by clamping.
-            t_s = self._last_t_s
+            t_s = last_t_s
         if self._first_t_s is None:
             self._first_t_s = t_s
         self._last_t_s = t_s
+        notices: list[Notice] = []
+        health = self.health
+        estimator = self.estimator
 
         for s in decoded:
             kind = type(s)
-            if kind is S.Rejected:
+            if kind is _Rejected:
                 self._reject(s.reason)
-                self.health.rejected(s.channel)
+                health.rejected(s.channel)
                 continue
             self._samples += 1
             ch = channel if channel is not None else _CSV_CHANNEL.get(kind)
-            if kind is S.LinkSample:
-                self.health.link(s.channel, s.state == "up")
+            if kind is _LinkSample:
+                health.link(s.channel, s.state == "up")
                 if s.state != "up":
                     notices.append(Notice(t_s, NOTICE_WARNING, f"{s.channel} link {s.state}",
                                           {"channel": s.channel, "state": s.state}))
             elif ch is not None:
-                if self.health.valid(ch, t_s):
+                if health.valid(ch, t_s):
                     notices.append(Notice(t_s, NOTICE_WARNING, f"{ch} values again",
                                           {"channel": ch, "state": "recovered"}))
-            if kind is S.PowerSample:
+            if kind is _PowerSample:
                 if math.isfinite(s.power_w) and s.power_w >= 0.0:
                     self._power_w = s.power_w
                     self._wbal_j = self.w_prime.update(s.t_s, s.power_w)
-            elif kind is S.CadenceSample:
+            elif kind is _CadenceSample:
                 self._cadence_rpm = s.cadence_rpm
-            elif kind is S.HeartRateSample:
+            elif kind is _HeartRateSample:
                 self._heart_rate_bpm = s.heart_rate_bpm
-            elif kind is S.AirSample and s.airspeed_mps is not None:
+            elif kind is _AirSample and s.airspeed_mps is not None:
                 self._airspeed_mps = s.airspeed_mps
-            self.estimator.feed(s)
+            estimator.feed(s)
             if self.keep_for_batch and kind in _BATCH_TYPES:
                 self._batch_samples.append(s)
 
-        for name in self.health.tick(t_s):
+        for name in health.tick(t_s):
             notices.append(Notice(t_s, NOTICE_WARNING, f"{name} stale: no valid value",
                                   {"channel": name, "state": "stale"}))
 
-        snap = self.estimator.snapshot()
-        distance_m = snap.distance_m
-        speed_mps = snap.speed_mps
-        if speed_mps is not None and math.isfinite(speed_mps):
-            self._max_speed_mps = max(self._max_speed_mps, speed_mps)
+        distance_m, speed_mps, cda_m2, cda_sd_m2, crr, crr_sd = estimator.live_values()
+        if speed_mps is not None and math.isfinite(speed_mps) and speed_mps > self._max_speed_mps:
+            self._max_speed_mps = speed_mps
 
         # Trap timing and phase from the distance track.
+        trap = self.trap
         if distance_m is not None:
             # Time the trap on the distance track's own points (wheel events
             # at their event times), not on the receive times of whatever
             # event came last: lines are timed to the wheel's resolution.
             crossed = None
-            point = self.estimator.latest_track_point()
+            point = estimator.latest_track_point()
             if point is not None and point != self._last_track_point:
                 self._last_track_point = point
-                crossed = self.trap.feed(point[0], point[1])
-            new_phase = self._phase
-            if self._phase == PHASE_WAITING and speed_mps is not None and speed_mps > ROLLING_SPEED_MPS:
+                crossed = trap.feed(point[0], point[1])
+            phase = self._phase
+            new_phase = phase
+            if phase == PHASE_WAITING and speed_mps is not None and speed_mps > ROLLING_SPEED_MPS:
                 new_phase = PHASE_RUNUP
             if crossed == "entry":
                 new_phase = PHASE_TRAP
             elif crossed == "exit":
                 new_phase = PHASE_DONE
-            if new_phase != self._phase:
+            if new_phase != phase:
                 self._phase = new_phase
                 data: dict[str, Any] = {"phase": new_phase}
-                if crossed == "exit" and self.trap.trap_speed_mps is not None:
-                    data["trap_speed_mps"] = self.trap.trap_speed_mps
+                if crossed == "exit" and trap.trap_speed_mps is not None:
+                    data["trap_speed_mps"] = trap.trap_speed_mps
                 notices.append(Notice(t_s, NOTICE_PHASE, f"phase {new_phase}", data))
 
-        for alarm in self.estimator.pop_alarms():
-            self._alarms.append(alarm.text)
-            notices.append(Notice(alarm.t_s, NOTICE_ALARM, alarm.text,
-                                  {"kind": "drag_changed", "step_cda_m2": alarm.step_cda_m2,
-                                   "start_t_s": alarm.start_t_s}))
+        alarms = estimator.pop_alarms()
+        if alarms:
+            for alarm in alarms:
+                self._alarms.append(alarm.text)
+                notices.append(Notice(alarm.t_s, NOTICE_ALARM, alarm.text,
+                                      {"kind": "drag_changed", "step_cda_m2": alarm.step_cda_m2,
+                                       "start_t_s": alarm.start_t_s}))
+            self._last_alarms = tuple(self._alarms[-5:])
 
         coach_out = self._coach_out
         if self.coach is not None and distance_m is not None and speed_mps is not None:
             coach_out = self.coach.update(
                 t_s, distance_m, speed_mps, self._power_w, self._wbal_j,
-                snap.cda_m2 if snap.cda_m2 is not None else self.ride.vehicle.cda_m2,
-                snap.crr if snap.crr is not None else self.ride.vehicle.crr,
+                cda_m2 if cda_m2 is not None else self._vehicle_cda_m2,
+                crr if crr is not None else self._vehicle_crr,
             )
             self._coach_out = coach_out
             notices.extend(coach_out.notices)
+        elif coach_out is None and self.coach is not None:
+            # On the start line (no position yet): the plan's starting target.
+            coach_out = self.coach.standby(t_s)
+        if coach_out is None:
+            target_power_w = planned_speed_mps = cue = cue_text = predicted_trap_speed_mps = None
+        else:
+            target_power_w = coach_out.target_power_w
+            planned_speed_mps = coach_out.planned_speed_mps
+            cue = coach_out.cue
+            cue_text = coach_out.cue_text
+            predicted_trap_speed_mps = coach_out.predicted_trap_speed_mps
 
-        speed_stale = self.health.stale(CH_CSC, t_s) and self.health.stale(CH_GPS, t_s)
-        state = LiveState(
-            t_s=t_s,
-            phase=self._phase,
-            distance_m=distance_m,
-            distance_to_trap_m=(self.ride.course.trap_entry_m - distance_m) if distance_m is not None else None,
-            speed_mps=speed_mps,
-            speed_stale=speed_stale,
-            power_w=self._power_w,
-            power_stale=self.health.stale(CH_POWER, t_s),
-            cadence_rpm=self._cadence_rpm,
-            heart_rate_bpm=self._heart_rate_bpm,
-            airspeed_mps=self._airspeed_mps,
-            target_power_w=getattr(coach_out, "target_power_w", None),
-            planned_speed_mps=getattr(coach_out, "planned_speed_mps", None),
-            cue=getattr(coach_out, "cue", None),
-            cue_text=getattr(coach_out, "cue_text", None),
-            predicted_trap_speed_mps=getattr(coach_out, "predicted_trap_speed_mps", None),
-            planned_trap_speed_mps=self._planned_trap_speed_mps,
-            w_prime_balance_j=self._wbal_j,
-            w_prime_j=self.ride.rider.w_prime_j,
-            cda_m2=snap.cda_m2,
-            cda_sd_m2=snap.cda_sd_m2,
-            crr=snap.crr,
-            crr_sd=snap.crr_sd,
-            alarms=tuple(self._alarms[-5:]),
-            sensors=self.health.snapshot(t_s),
-            trap_entry_t_s=self.trap.entry_t_s,
-            trap_exit_t_s=self.trap.exit_t_s,
-            trap_speed_mps=self.trap.trap_speed_mps,
+        stale = health.stale
+        state = _live_state(  # LiveState, by position
+            t_s,                                                          # t_s
+            self._phase,                                                  # phase
+            distance_m,                                                   # distance_m
+            (self._trap_entry_m - distance_m) if distance_m is not None else None,  # distance_to_trap_m
+            speed_mps,                                                    # speed_mps
+            stale(CH_CSC, t_s) and stale(CH_GPS, t_s),                    # speed_stale
+            self._power_w,                                                # power_w
+            stale(CH_POWER, t_s),                                         # power_stale
+            self._cadence_rpm,                                            # cadence_rpm
+            self._heart_rate_bpm,                                         # heart_rate_bpm
+            self._airspeed_mps,                                           # airspeed_mps
+            target_power_w,                                               # target_power_w
+            planned_speed_mps,                                            # planned_speed_mps
+            cue,                                                          # cue
+            cue_text,                                                     # cue_text
+            predicted_trap_speed_mps,                                     # predicted_trap_speed_mps
+            self._planned_trap_speed_mps,                                 # planned_trap_speed_mps
+            self._wbal_j,                                                 # w_prime_balance_j
+            self._w_prime_j,                                              # w_prime_j
+            cda_m2,                                                       # cda_m2
+            cda_sd_m2,                                                    # cda_sd_m2
+            crr,                                                          # crr
+            crr_sd,                                                       # crr_sd
+            self._last_alarms,                                            # alarms
+            health.snapshot(t_s),                                         # sensors
+            trap.entry_t_s,                                               # trap_entry_t_s
+            trap.exit_t_s,                                                # trap_exit_t_s
+            trap.trap_speed_mps,                                          # trap_speed_mps
         )
         self._state = state
-        return StepResult(state, tuple(notices))
+        return _step_result(state, tuple(notices) if notices else ())
 
     def _reject(self, reason: str) -> None:
         self._rejected += 1
