@@ -172,3 +172,13 @@ def test_fuzz_well_signed_garbage_fields(fields, head):
         decode_nmea(_signed(",".join([head, *fields])), 0.0)
     except DecodeError:
         pass
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.text(alphabet=st.characters(min_codepoint=32, max_codepoint=126), max_size=300))
+def test_checksum_is_the_xor_of_every_character(body):
+    # the definition (NMEA 0183): XOR of the characters between '$' and '*', one by one
+    want = 0
+    for ch in body:
+        want ^= ord(ch)
+    assert nmea_checksum(body) == want

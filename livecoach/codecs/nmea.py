@@ -29,6 +29,7 @@ import re
 
 from livecoach.codecs._errors import BAD_CHECKSUM, MALFORMED, NOT_UTF8, OUT_OF_RANGE, PayloadError
 from livecoach.errors import EncodeError
+from livecoach.stream.builders import positional_builder
 from livecoach.stream.samples import GpsSample
 
 #: m/s per knot (1852 m / 3600 s, exact).
@@ -46,13 +47,25 @@ _SPACE = re.compile(r"\s")
 #: Highest data-field index read (RMC mode indicator).
 _MAX_FIELD = 11
 
+#: GpsSample by position: t_s, valid, latitude_deg, longitude_deg, altitude_m,
+#: speed_mps, course_deg, utc_time, utc_date, satellites, hdop.
+_gps_sample = positional_builder(GpsSample)
+
 
 def nmea_checksum(body: str) -> int:
-    """NMEA 0183 checksum: XOR of the characters of ``body`` (between ``$`` and ``*``)."""
-    c = 0
-    for b in body.encode("ascii"):
-        c ^= b
-    return c
+    """NMEA 0183 checksum: XOR of the characters of ``body`` (between ``$`` and ``*``).
+
+    The bytes are read as one little-endian integer and folded onto
+    themselves (shifts of 64, 32, ..., 1 bytes), so byte 0 ends up as the
+    XOR of them all: a few integer operations instead of one per character.
+    """
+    data = body.encode("ascii")
+    v = int.from_bytes(data, "little")
+    width = 1 << (len(data) - 1).bit_length() if data else 1   # bytes, a power of two
+    while width > 1:
+        width >>= 1
+        v ^= v >> (8 * width)
+    return v & 0xFF
 
 
 def _float(text: str, what: str) -> float | None:
@@ -78,10 +91,18 @@ def _angle(value: str, hemisphere: str, degree_digits: int, what: str) -> float 
     if whole != degree_digits + 2 or hemisphere not in (("N", "S") if degree_digits == 2 else ("E", "W")):
         # exactly degree_digits + 2 digits before the point: "001.0000000" is not 1 deg nor 1 min
         raise PayloadError(MALFORMED, f"{what} '{value},{hemisphere}' is not d{'d' * degree_digits}mm.mmmm,hemisphere")
-    deg = _float(value[:degree_digits], what)
-    minutes = _float(value[degree_digits:], what)
-    if deg is None or minutes is None or deg < 0 or not 0.0 <= minutes < 60.0 or "-" in value:
-        raise PayloadError(MALFORMED, f"{what} '{value}' has bad degrees or minutes")
+    if value.replace(".", "", 1).isdigit():
+        # The usual case, digits and at most one point: both parts are plain
+        # unsigned numbers (what _float accepts), degrees >= 0, no sign.
+        deg = float(value[:degree_digits])
+        minutes = float(value[degree_digits:])
+        if not minutes < 60.0:
+            raise PayloadError(MALFORMED, f"{what} '{value}' has bad degrees or minutes")
+    else:
+        deg = _float(value[:degree_digits], what)
+        minutes = _float(value[degree_digits:], what)
+        if deg is None or minutes is None or deg < 0 or not 0.0 <= minutes < 60.0 or "-" in value:
+            raise PayloadError(MALFORMED, f"{what} '{value}' has bad degrees or minutes")
     out = deg + minutes / 60.0
     limit = 90.0 if degree_digits == 2 else 180.0
     if out > limit:
@@ -121,7 +142,7 @@ def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
         raise PayloadError(BAD_CHECKSUM, f"sentence says {want:02X}, the characters give {got:02X}")
     fields = body.split(",")
     address = fields[0]
-    if len(fields) < 2 or not _ADDRESS.match(address):
+    if len(fields) < 2 or not ((len(address) == 5 and address.isalnum()) or _ADDRESS.match(address)):
         raise PayloadError(MALFORMED, f"address field '{address[:12]}' is not talker + sentence type "
                                       "(five letters or digits) followed by a comma")
     if "*" in body:
@@ -135,58 +156,51 @@ def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
     n_data = len(data)
     if n_data < _MAX_FIELD + 1:
         data += [""] * (_MAX_FIELD + 1 - n_data)   # absent optional fields read as empty
-    field = data.__getitem__
 
+    # GpsSample fields by position (see _gps_sample); the checks run in the
+    # order of the fields, so the first bad field is the one reported.
     if kind == "RMC":
         if n_data < 9:
             raise PayloadError(MALFORMED, f"RMC has {n_data} fields, needs at least 9")
-        status = field(1)
-        mode = field(11)
-        valid = status == "A" and mode != "N"
-        lat = _angle(field(2), field(3), 2, "RMC latitude")
-        lon = _angle(field(4), field(5), 3, "RMC longitude")
-        knots = _float(field(6), "RMC speed")
-        return GpsSample(
-            t_s=t_s,
-            valid=valid,
-            latitude_deg=lat if valid else None,
-            longitude_deg=lon if valid else None,
-            speed_mps=_speed(None if knots is None else knots * MPS_PER_KNOT, "RMC speed") if valid else None,
-            course_deg=_float(field(7), "RMC course") if valid else None,
-            utc_time=field(0) or None,
-            utc_date=field(8) or None,
-        )
+        valid = data[1] == "A" and data[11] != "N"
+        lat = _angle(data[2], data[3], 2, "RMC latitude")
+        lon = _angle(data[4], data[5], 3, "RMC longitude")
+        knots = _float(data[6], "RMC speed")
+        if valid:
+            speed = None if knots is None else knots * MPS_PER_KNOT
+            if speed is not None and not 0.0 <= speed < 300.0:
+                _speed(speed, "RMC speed")
+            return _gps_sample(t_s, True, lat, lon, None, speed, _float(data[7], "RMC course"),
+                               data[0] or None, data[8] or None, None, None)
+        return _gps_sample(t_s, False, None, None, None, None, None,
+                           data[0] or None, data[8] or None, None, None)
     if kind == "GGA":
         if n_data < 9:
             raise PayloadError(MALFORMED, f"GGA has {n_data} fields, needs at least 9")
-        quality = _float(field(5), "GGA fix quality")
+        quality = _float(data[5], "GGA fix quality")
         valid = quality is not None and quality > 0
-        lat = _angle(field(1), field(2), 2, "GGA latitude")
-        lon = _angle(field(3), field(4), 3, "GGA longitude")
-        sats = _float(field(6), "GGA satellites")
-        return GpsSample(
-            t_s=t_s,
-            valid=valid,
-            latitude_deg=lat if valid else None,
-            longitude_deg=lon if valid else None,
-            altitude_m=_float(field(8), "GGA altitude") if valid else None,
-            utc_time=field(0) or None,
-            satellites=None if sats is None else int(sats),
-            hdop=_float(field(7), "GGA HDOP"),
-        )
+        lat = _angle(data[1], data[2], 2, "GGA latitude")
+        lon = _angle(data[3], data[4], 3, "GGA longitude")
+        sats = _float(data[6], "GGA satellites")
+        if valid:
+            return _gps_sample(t_s, True, lat, lon, _float(data[8], "GGA altitude"), None, None,
+                               data[0] or None, None, None if sats is None else int(sats),
+                               _float(data[7], "GGA HDOP"))
+        return _gps_sample(t_s, False, None, None, None, None, None, data[0] or None, None,
+                           None if sats is None else int(sats), _float(data[7], "GGA HDOP"))
     # VTG: true track, T, magnetic track, M, knots, N, km/h, K[, mode]
     if n_data < 8:
         raise PayloadError(MALFORMED, f"VTG has {n_data} fields, needs at least 8")
-    kmh = _float(field(6), "VTG speed km/h")
-    knots = _float(field(4), "VTG speed knots")
+    kmh = _float(data[6], "VTG speed km/h")
+    knots = _float(data[4], "VTG speed knots")
     speed = kmh * MPS_PER_KMH if kmh is not None else (None if knots is None else knots * MPS_PER_KNOT)
-    mode = field(8)
+    mode = data[8]
     valid = speed is not None and mode != "N"
     return GpsSample(
         t_s=t_s,
         valid=valid,
         speed_mps=_speed(speed, "VTG speed") if valid else None,
-        course_deg=_float(field(0), "VTG course") if valid else None,
+        course_deg=_float(data[0], "VTG course") if valid else None,
     )
 
 
