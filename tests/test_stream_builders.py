@@ -11,7 +11,9 @@ from livecoach.pipeline.processor import StepResult
 from livecoach.pipeline.state import LiveState, Notice, SensorHealth
 from livecoach.stream.builders import positional_builder
 from livecoach.stream.events import RawEvent
-from livecoach.stream.samples import AirSample, GpsSample, WheelSample
+from livecoach.codecs.mcu_line import McuAir, McuWheel
+from livecoach.stream.samples import (AirSample, CadenceSample, GpsSample, HeartRateSample, PowerSample,
+                                      WheelSample)
 
 
 def _values(cls):
@@ -21,7 +23,7 @@ def _values(cls):
 
 
 @pytest.mark.parametrize("cls", [LiveState, SensorHealth, StepResult, RawEvent, GpsSample, AirSample,
-                                 WheelSample])
+                                 WheelSample, PowerSample, CadenceSample, HeartRateSample, McuAir, McuWheel])
 def test_built_record_is_the_record_built_by_keyword(cls):
     values = _values(cls)
     by_keyword = cls(**{f.name: v for f, v in zip(dataclasses.fields(cls), values)})

@@ -50,6 +50,7 @@ from livecoach.codecs._errors import (
     PayloadError,
 )
 from livecoach.errors import EncodeError
+from livecoach.stream.builders import positional_builder
 
 PREFIX = "lsl1"
 _U32 = 0xFFFFFFFF
@@ -104,6 +105,10 @@ class McuButton:
 
 
 McuRecord = McuHello | McuAir | McuWheel | McuButton
+
+# By position (the decoder makes one per line): McuAir(t_us, as, p, t, rh), McuWheel(t_us, n, e).
+_mcu_air = positional_builder(McuAir)
+_mcu_wheel = positional_builder(McuWheel)
 
 # key -> (attribute, lo, hi, decimals when encoding)
 _AIR_KEYS = {
@@ -184,11 +189,11 @@ def decode_mcu_line(line: bytes) -> McuRecord:
             if not lo <= v <= hi:
                 raise PayloadError(OUT_OF_RANGE, f"air {key}={raw} is outside {lo:g}..{hi:g}")
             values[index] = v
-        return McuAir(t_us, *values)
+        return _mcu_air(t_us, *values)
     if kind == "whl":
         if "n" not in f or "e" not in f:
             raise PayloadError(MALFORMED, "a whl record needs both n and e")
-        return McuWheel(t_us, _uint32(f["n"], "whl n"), _uint32(f["e"], "whl e"))
+        return _mcu_wheel(t_us, _uint32(f["n"], "whl n"), _uint32(f["e"], "whl e"))
     key = "fw" if kind == "hlo" else "id"
     word = f.get(key)
     if word is None:

@@ -62,6 +62,7 @@ from livecoach.codecs.nmea import decode_nmea
 from livecoach.codecs.revolutions import CounterUnwrapper, RevolutionTracker
 from livecoach.config.schema import setting
 from livecoach.errors import LivecoachError
+from livecoach.stream.builders import positional_builder
 from livecoach.stream.events import (
     CH_CONTROL,
     CH_CSC,
@@ -96,6 +97,14 @@ FROZEN = "frozen"
 WHEEL_SOURCES = ("csc", "mcu", "power")
 LINK_STATES = ("up", "down", "reconnecting")
 _TWO_PI = 2.0 * math.pi
+
+# The samples made once or more per event, built by position (field order of
+# livecoach.stream.samples; every field given).
+_wheel_sample = positional_builder(WheelSample)        # t_s, revolutions, event time, source
+_cadence_sample = positional_builder(CadenceSample)    # t_s, cadence_rpm
+_power_sample = positional_builder(PowerSample)        # t_s, power, crank revs, crank t, energy, balance
+_heart_rate_sample = positional_builder(HeartRateSample)  # t_s, bpm, rr intervals
+_air_sample = positional_builder(AirSample)            # t_s, air speed, pressure, temperature, humidity
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -303,7 +312,7 @@ class Decoder:
             return Rejected(t_s, channel, f"{exc.kind}: {source} wheel {exc.detail}")
         if not self._use_wheel(source, t_s):
             return None
-        return WheelSample(t_s, r.revolutions, r.event_time_s, source)
+        return _wheel_sample(t_s, r.revolutions, r.event_time_s, source)
 
     def _cadence(self, source: str, t_s: float, channel: str, revs: int, ticks: int) -> Any:
         tracker = self._crank[source]
@@ -316,9 +325,9 @@ class Decoder:
             if rpm > self.config.max_cadence_rpm:
                 return Rejected(t_s, channel, f"{OUT_OF_RANGE}: cadence {rpm:.0f} rpm above "
                                               f"{self.config.max_cadence_rpm:g}")
-            return CadenceSample(t_s, rpm)
+            return _cadence_sample(t_s, rpm)
         if tracker.stopped(t_s, self.config.cadence_stop_s):
-            return CadenceSample(t_s, 0.0)
+            return _cadence_sample(t_s, 0.0)
         return None
 
     # ---------------------------------------------------------------- channels
@@ -342,7 +351,7 @@ class Decoder:
                 except PayloadError:
                     energy = None
         if c.min_power_w <= power <= c.max_power_w:
-            out.insert(0, PowerSample(t_s, float(power), crank_revs, crank_t, energy, m.pedal_power_balance_pct))
+            out.insert(0, _power_sample(t_s, float(power), crank_revs, crank_t, energy, m.pedal_power_balance_pct))
         else:
             out.insert(0, Rejected(t_s, CH_POWER, f"{OUT_OF_RANGE}: power {power} W outside "
                                                   f"{c.min_power_w:g}..{c.max_power_w:g} W"))
@@ -373,7 +382,7 @@ class Decoder:
         if not lo <= m.heart_rate_bpm <= hi:
             return [Rejected(t_s, CH_HEART_RATE, f"{OUT_OF_RANGE}: heart rate {m.heart_rate_bpm} bpm "
                                                  f"outside {lo:g}..{hi:g}")]
-        return [HeartRateSample(t_s, float(m.heart_rate_bpm), m.rr_intervals_s)]
+        return [_heart_rate_sample(t_s, float(m.heart_rate_bpm), m.rr_intervals_s)]
 
     def _gps(self, t_s: float, payload: bytes) -> list[Any]:
         s = decode_nmea(payload, t_s)
@@ -383,7 +392,7 @@ class Decoder:
         r = decode_mcu_line(payload)
         kind = type(r)
         if kind is McuAir:
-            return [AirSample(t_s, r.airspeed_mps, r.pressure_pa, r.temperature_c, r.relative_humidity_pct)]
+            return [_air_sample(t_s, r.airspeed_mps, r.pressure_pa, r.temperature_c, r.relative_humidity_pct)]
         if kind is McuWheel:
             s = self._wheel_sample("mcu", t_s, CH_MCU, r.revolutions, r.event_time_us)
             return [] if s is None else [s]

@@ -39,11 +39,13 @@ from livecoach.recording.format import (
     U32,
     RecordingHeader,
 )
+from livecoach.stream.builders import positional_builder
 from livecoach.stream.events import RawEvent
 
 _CHUNK = 1 << 20
 _KEEP = FRAME_OVERHEAD + MAX_RECORD_BODY   # a whole frame is in the buffer unless at end of file
 _MAX_LISTED_DAMAGE = 20
+_raw_event = positional_builder(RawEvent)   # RawEvent(t_s, channel, payload), by position
 
 
 @dataclass(frozen=True, slots=True)
@@ -181,6 +183,7 @@ class RecordingReader:
         keep, overhead, max_body, sync_bytes = _KEEP, FRAME_OVERHEAD, MAX_RECORD_BODY, SYNC
         t_event, t_output, t_end = TYPE_EVENT, TYPE_OUTPUT, TYPE_END
         channels: dict[bytes, str] = {}
+        raw_event = _raw_event
         n_events = 0
         n_outputs = 0
 
@@ -267,7 +270,7 @@ class RecordingReader:
                     if ch is None:
                         ch = channels[name] = name.decode("ascii", "replace")
                     n_events += 1
-                    yield RawEvent(unpack_f64(buf, pos + 12)[0], ch, buf[pos + 21 + k:end])
+                    yield raw_event(unpack_f64(buf, pos + 12)[0], ch, buf[pos + 21 + k:end])
                 elif rtype == t_output:
                     k = buf[pos + 20]
                     n_outputs += 1
