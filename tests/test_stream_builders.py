@@ -11,6 +11,7 @@ from livecoach.pipeline.processor import StepResult
 from livecoach.pipeline.state import LiveState, Notice, SensorHealth
 from livecoach.stream.builders import positional_builder
 from livecoach.stream.events import RawEvent
+from livecoach.coach.live import CoachOutput
 from livecoach.codecs.mcu_line import McuAir, McuWheel
 from livecoach.stream.samples import (AirSample, CadenceSample, GpsSample, HeartRateSample, PowerSample,
                                       WheelSample)
@@ -23,7 +24,8 @@ def _values(cls):
 
 
 @pytest.mark.parametrize("cls", [LiveState, SensorHealth, StepResult, RawEvent, GpsSample, AirSample,
-                                 WheelSample, PowerSample, CadenceSample, HeartRateSample, McuAir, McuWheel])
+                                 WheelSample, PowerSample, CadenceSample, HeartRateSample, McuAir, McuWheel,
+                                 CoachOutput])
 def test_built_record_is_the_record_built_by_keyword(cls):
     values = _values(cls)
     by_keyword = cls(**{f.name: v for f, v in zip(dataclasses.fields(cls), values)})

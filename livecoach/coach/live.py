@@ -41,6 +41,7 @@ from livecoach.coach.predict import Replan, Replanner, clamp_drag
 from livecoach.coach.settings import CoachConfig
 from livecoach.errors import LivecoachError
 from livecoach.pipeline.state import NOTICE_CUE, NOTICE_WARNING, Notice
+from livecoach.stream.builders import positional_builder
 
 #: Speed above which the vehicle counts as rolling, m/s (same as the pipeline's).
 ROLLING_SPEED_MPS = 1.0
@@ -67,6 +68,11 @@ class CoachOutput:
     final_effort_m: float
     replanned: bool
     notices: tuple[Notice, ...] = ()
+
+
+#: CoachOutput without the frozen-record cost per field (see livecoach.stream.builders);
+#: one per update. Every field must be given (by keyword here).
+_coach_output = positional_builder(CoachOutput)
 
 
 def _coach_config(ride) -> CoachConfig:
@@ -104,6 +110,7 @@ class LiveCoach:
         self._exit_t_s: float | None = None
         self._last_warning = ""
         self._output: CoachOutput | None = None
+        self._planned_trap_speed_mps: float | None = None   # the plan's, read once (the plan is frozen)
 
     # ---------------------------------------------------------------- helpers
     def _smooth_power(self, t_s: float, power_w: float | None) -> None:
@@ -217,7 +224,9 @@ class LiveCoach:
             }))
         self._last_t_s = t_s
         self._last_d_m = d
-        out = CoachOutput(
+        if self._planned_trap_speed_mps is None:
+            self._planned_trap_speed_mps = self.plan.trap_speed_mps
+        out = _coach_output(
             t_s=t_s,
             target_power_w=target,
             planned_speed_mps=point.planned_speed_mps,
@@ -226,7 +235,7 @@ class LiveCoach:
             cue=cue,
             cue_text=CUE_TEXT[cue],
             predicted_trap_speed_mps=self._prediction,
-            planned_trap_speed_mps=self.plan.trap_speed_mps,
+            planned_trap_speed_mps=self._planned_trap_speed_mps,
             final_effort_m=final_effort_m,
             replanned=replanned,
             notices=tuple(notices),
