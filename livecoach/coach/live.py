@@ -129,6 +129,9 @@ class LiveCoach:
             self._power_avg_w += alpha * (p - self._power_avg_w)
 
     def _track_trap(self, t_s: float, d: float) -> None:
+        if (d < self.trap_entry_m and d < self.trap_exit_m) or (
+                self._entry_t_s is not None and self._exit_t_s is not None):
+            return  # no line to time now (the usual case: the loop below would set nothing)
         prev_t, prev_d = self._last_t_s, self._last_d_m
         for line, attr in ((self.trap_entry_m, "_entry_t_s"), (self.trap_exit_m, "_exit_t_s")):
             if getattr(self, attr) is None and d >= line:
