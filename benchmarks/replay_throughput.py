@@ -16,9 +16,19 @@ Measured:
   recorded plan (coaching, as the CLI does) and without a plan (estimation
   only), and reading the file alone.
 
+With ``--stages``: the cost per event of each stage, in CPU seconds of
+this process (``time.process_time``, best of ``--repeat`` runs; less
+sensitive than wall time to other jobs on the machine), on the events read
+into memory first: decoding alone (``Decoder.feed``), the estimator alone on
+the decoded samples (``feed`` + ``live_values`` per event), the pipeline
+without and with coaching, and the time of the re-plans within the latter.
+The pipeline's own bookkeeping (health, trap, phase, state) is the pipeline
+without coaching less decoding and estimator; coaching between re-plans is
+the coached pipeline less the uncoached one and the re-plans.
+
 Targets (issue 8): >= 50,000 events/s in replay; peak RSS <= 80 MB.
 
-Run: .venv/bin/python benchmarks/replay_throughput.py [--json]
+Run: .venv/bin/python benchmarks/replay_throughput.py [--json] [--stages [--repeat N]]
 """
 
 from __future__ import annotations
@@ -66,6 +76,100 @@ def _read_only(path: Path) -> dict:
     t0 = time.perf_counter()
     n = sum(1 for _ in RecordingReader(path).events())
     return {"events": n, "wall_s": time.perf_counter() - t0}
+
+
+def stages(path: Path, repeat: int = 3) -> dict:
+    """CPU µs per event of each stage (see the module docstring), best of ``repeat``."""
+    import gc
+
+    from livecoach.pipeline.decode import Decoder
+    from livecoach.pipeline.processor import Pipeline
+    from livecoach.estimate import LiveDragEstimator
+    from livecoach.recording.reader import RecordingReader
+    from livecoach.recording.replay import plan_from_header
+    from livecoach.stream.events import CH_TICK
+
+    reader = RecordingReader(path)
+    ride = reader.header.ride_config(str(path))
+    plan = plan_from_header(reader.header, ride)
+    events = list(reader.events())
+    decoder = Decoder(ride)
+    decoded = [decoder.feed(e) if e.channel != CH_TICK else [] for e in events]
+    replan_s = [0.0]
+
+    def read() -> None:
+        for _ in RecordingReader(path).events():
+            pass
+
+    def decode() -> None:
+        feed = Decoder(ride).feed
+        for e in events:
+            feed(e)
+
+    def estimate() -> None:
+        est = LiveDragEstimator(ride)
+        feed, values = est.feed, est.live_values
+        for samples in decoded:
+            for s in samples:
+                feed(s)
+            values()
+
+    def pipeline(with_plan: bool) -> None:
+        pipe = Pipeline(ride, plan if with_plan else None)
+        if pipe.coach is not None:
+            replanner = pipe.coach.replanner
+            inner = replanner.replan
+            replan_s[0] = 0.0
+
+            def timed(*args, **kwargs):
+                t0 = time.process_time()
+                try:
+                    return inner(*args, **kwargs)
+                finally:
+                    replan_s[0] += time.process_time() - t0
+
+            replanner.replan = timed
+        feed = pipe.feed
+        for e in events:
+            feed(e)
+
+    def best(fn) -> tuple[float, float]:
+        runs = []
+        for _ in range(repeat):
+            gc.collect()
+            t0 = time.process_time()
+            fn()
+            runs.append((time.process_time() - t0, replan_s[0]))
+        return min(runs)
+
+    n = len(events)
+    us = 1e6 / n
+    out = {"events": n, "repeat": repeat, "clock": "process_time"}
+    out["read_us"] = best(read)[0] * us
+    out["decode_us"] = best(decode)[0] * us
+    out["estimator_us"] = best(estimate)[0] * us
+    out["pipeline_estimation_only_us"] = best(lambda: pipeline(False))[0] * us
+    coach_s, replans_s = best(lambda: pipeline(True))
+    out["pipeline_coaching_us"] = coach_s * us
+    out["replans_us"] = replans_s * us
+    out["bookkeeping_us"] = out["pipeline_estimation_only_us"] - out["decode_us"] - out["estimator_us"]
+    out["coaching_between_replans_us"] = (out["pipeline_coaching_us"] - out["pipeline_estimation_only_us"]
+                                          - out["replans_us"])
+    return out
+
+
+def print_stages(st: dict) -> None:
+    print(f"CPU per event ({st['events']} events in memory, best of {st['repeat']}):")
+    for key, label in (("read_us", "reading the file"), ("decode_us", "decoding"),
+                       ("estimator_us", "estimator (feed + live values)"),
+                       ("bookkeeping_us", "pipeline bookkeeping and state"),
+                       ("pipeline_estimation_only_us", "= pipeline, estimation only"),
+                       ("coaching_between_replans_us", "coaching between re-plans"),
+                       ("replans_us", "re-plans (amortised)"),
+                       ("pipeline_coaching_us", "= pipeline with coaching")):
+        v = st[key]
+        print(f"  {label:34s} {v:7.1f} us  ({1e6 / v:>9,.0f} events/s)" if v > 0 else
+              f"  {label:34s} {v:7.1f} us")
 
 
 def run(say=print) -> dict:
@@ -139,13 +243,19 @@ def print_report(r: dict) -> None:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--json", action="store_true", help="print the results as JSON")
+    ap.add_argument("--stages", action="store_true", help="also measure the CPU cost of each stage")
+    ap.add_argument("--repeat", type=int, default=3, help="runs per stage with --stages (best is kept)")
     args = ap.parse_args()
     r = run()
+    if args.stages:
+        r["stages"] = stages(benchlib.cached_recording(benchlib.HOUR), max(args.repeat, 1))
     benchlib.write_results("replay_throughput", r)
     if args.json:
         print(json.dumps(r, indent=2, sort_keys=True))
     else:
         print_report(r)
+        if "stages" in r:
+            print_stages(r["stages"])
 
 
 if __name__ == "__main__":
