@@ -151,7 +151,7 @@ def decode_nmea(line: bytes, t_s: float) -> GpsSample | None:
     if kind not in SENTENCE_TYPES:
         return None
     data = fields[1:]
-    if _SPACE.search(body):
+    if (" " in body or not body.isprintable()) and _SPACE.search(body):   # regex only when it may match
         data = [f.strip() for f in data]
     n_data = len(data)
     if n_data < _MAX_FIELD + 1:
