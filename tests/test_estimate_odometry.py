@@ -287,3 +287,27 @@ def test_without_gps_a_gap_is_bridged_at_the_last_speed():
     assert not any(st for tk, _, _, st in moving if tk < 12.5)
     assert all(st for tk, _, _, st in moving if 12.6 < tk < 14.0)
     assert not any(st for tk, _, _, st in moving if tk > 14.1)
+
+
+def test_standing_on_the_start_line_a_gps_at_rest_does_not_creep_the_distance():
+    """A minute on the start line: the wheel sensor notifies "no new event" at 2 Hz and a
+    GPS at rest reads 0.15 m/s of noise. A vehicle standing still covers no distance
+    (common practice), so the distance stays at the first wheel point (it used to creep
+    9 m at the GPS noise, and the coach took the vehicle for rolling past 1 m)."""
+    track = WheelTrack(1.47, max_accel_mps2=5.0)
+    odo = Odometer(track, stale_s=3.0, gps_fresh_s=1.5)
+    for k in range(600):
+        t = 0.1 * k
+        if k % 5 == 0:
+            track.feed(t + 0.03, 100, 5000.0)  # same count and event time: not turning
+        odo.update(t + 0.04, t + 0.04, 0.15, None, None)
+        assert odo.distance_m(t + 0.04) == 0.0 and odo.speed_mps == 0.0 and odo.source == "wheel"
+    # The rider pushes off at 60 s at 5 m/s: the wheel's distance is taken up.
+    for k in range(1, 9):
+        t = 60.0 + 0.5 * k
+        n = 100 + int(5.0 * 0.5 * k / 1.47)
+        track.feed(t + 0.03, n, 5060.0 + (n - 100) * 1.47 / 5.0)
+        f = track.recent_fit()
+        odo.update(t + 0.04, t + 0.04, 5.0, f.c1 if f else None, 2.0 * f.c2 if f else None)
+    assert odo.source == "wheel" and odo.speed_mps == pytest.approx(5.0, rel=0.05)
+    assert odo.distance_m(64.04) == pytest.approx(5.0 * 4.0, abs=2.0)
