@@ -129,11 +129,12 @@ class Odometer:
                     self._d0_m, self._t0_s, self._v_mps = w.ds[-1], t_s, 0.0
             # Continue the source distance from here at the best speed there is.
             d_now = self._source_m(t_s)
-            if not self._wheel_seen and not w.in_break and silent_s <= SILENCE_S:
-                # Before the wheel's first speed (on the start line) a wheel that is
-                # still notifying is the authority: it has not turned since its first
-                # point, whatever speed a GPS at rest reads (its noise would creep the
-                # distance forward).
+            if (not self._wheel_seen and not w.in_break and silent_s <= SILENCE_S
+                    and w.last_new_point_rx_s is not None and last_ok > w.last_new_point_rx_s):
+                # Before the wheel's first speed (on the start line) a wheel whose newest
+                # notification said "no new event" is the authority: it has not turned
+                # since its newest point, whatever speed a GPS at rest reads (its noise
+                # would creep the distance forward).
                 v, self.source = 0.0, "wheel"
                 self._info_t_s = last_ok
             elif gps_fresh:
