@@ -4,4 +4,4 @@ Functional core (physics, codecs, estimator, rider model, planner, coach) and a
 thin imperative shell (sources, sinks, CLI) around one event stream.
 """
 
-__version__ = "0.1.0"
+__version__ = "0.2.0"

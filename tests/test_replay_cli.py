@@ -131,7 +131,32 @@ def test_replay_detects_outputs_it_does_not_reproduce(sim_run, tmp_path, cli):
     out = cli("replay", str(path))
     assert out.returncode == 1
     assert b"does not reproduce the recorded outputs" in out.stderr
+    assert b"recorded by livecoach" not in out.stderr     # same version: no excuse offered
     assert b"state output" in out.stdout and b"differs" in out.stdout
+
+
+def test_a_recording_from_another_version_says_so_when_it_differs(sim_run, tmp_path, cli):
+    import dataclasses
+
+    from livecoach import __version__
+
+    ride = sim_run.scenario.ride
+    path = tmp_path / "older.lcrec"
+    header = header_for_ride(ride, start_wall_time_unix_s=1.9e9, start_monotonic_s=0.0)
+    rec = Recorder(path, dataclasses.replace(header, software_version="0.0.9"))
+    assert rec.start()
+    sink = RecordingSink(rec)
+    pipe = Pipeline(ride)
+    for i, ev in enumerate(sim_run.events[:700]):
+        sink.on_event(ev)
+        state = pipe.feed(ev).state
+        if i == 600:    # the older version computed something else here
+            state = type(state)(**{**{f: getattr(state, f) for f in state.__slots__}, "phase": "trap"})
+        sink.on_state(state)
+    rec.close()
+    out = cli("replay", str(path))
+    assert out.returncode == 1
+    assert f"recorded by livecoach 0.0.9 and this is {__version__}".encode() in out.stderr
 
 
 def test_torn_tail_replays_with_a_warning(recording, tmp_path, cli):
