@@ -110,7 +110,7 @@ class LiveCoach:
         self._exit_t_s: float | None = None
         self._last_warning = ""
         self._output: CoachOutput | None = None
-        self._planned_trap_speed_mps: float | None = None   # the plan's, read once (the plan is frozen)
+        self._planned_trap_speed_mps: float = plan.trap_speed_mps   # read once (the plan is frozen)
 
     # ---------------------------------------------------------------- helpers
     def _smooth_power(self, t_s: float, power_w: float | None) -> None:
@@ -227,8 +227,6 @@ class LiveCoach:
             }))
         self._last_t_s = t_s
         self._last_d_m = d
-        if self._planned_trap_speed_mps is None:
-            self._planned_trap_speed_mps = self.plan.trap_speed_mps
         out = _coach_output(
             t_s=t_s,
             target_power_w=target,
@@ -278,7 +276,7 @@ class LiveCoach:
             planned_power_w=point.target_power_w,
             planned_w_prime_balance_j=point.planned_w_prime_balance_j, cue=cue,
             cue_text=CUE_TEXT[cue], predicted_trap_speed_mps=None,
-            planned_trap_speed_mps=self.plan.trap_speed_mps, final_effort_m=self.plan.final_effort_m,
+            planned_trap_speed_mps=self._planned_trap_speed_mps, final_effort_m=self.plan.final_effort_m,
             replanned=False,
         )
 
