@@ -314,3 +314,31 @@ def test_standing_on_the_start_line_a_gps_at_rest_does_not_creep_the_distance():
         odo.update(t + 0.04, t + 0.04, 5.0, f.c1 if f else None, 2.0 * f.c2 if f else None)
     assert odo.source == "wheel" and odo.speed_mps == pytest.approx(5.0, rel=0.05)
     assert odo.distance_m(64.04) == pytest.approx(5.0 * 4.0, abs=2.0)
+
+
+def test_stopped_in_a_bridge_a_gps_at_rest_does_not_creep_the_distance():
+    """The wheel sensor goes quiet (disconnected) while rolling at 10 m/s, the GPS
+    bridges, and the vehicle stops; for a minute a GPS at rest reads 0.15 m/s of noise.
+    A vehicle standing still covers no distance (common practice): GPS speeds below
+    the stopped threshold count as 0 in a bridge (the distance used to creep 9 m)."""
+    track = WheelTrack(1.47, max_accel_mps2=5.0)
+    odo = Odometer(track, stale_s=3.0, gps_fresh_s=1.5)
+    n = 0
+    for k in range(1, 21):                      # 10 s at 10 m/s, wheel points at 2 Hz
+        t = 0.5 * k
+        n = int(10.0 * t / 1.47)
+        track.feed(t + 0.03, n, 1000.0 + n * 1.47 / 10.0)
+        f = track.recent_fit()
+        odo.update(t + 0.04, t + 0.04, 10.0, f.c1 if f else None, 2.0 * f.c2 if f else None)
+    assert odo.source == "wheel"
+    # The wheel goes quiet; the GPS slows to a stop over 5 s, then stands.
+    shown = {}
+    for k in range(1, 651):
+        t = 10.0 + 0.1 * k
+        gps = max(10.0 - 2.0 * (t - 10.0), 0.0) if t < 15.0 else 0.15
+        odo.update(t + 0.04, t + 0.04, gps, None, None)
+        shown[k] = odo.distance_m(t + 0.04)
+    assert odo.source == "gps" and odo.speed_mps == 0.0
+    # Slowing from 10 m/s at 2 m/s^2 covers 25 m; standing still covers nothing.
+    assert shown[50] - shown[1] == pytest.approx(25.0, abs=2.0)
+    assert shown[650] - shown[100] < 0.5

@@ -138,7 +138,10 @@ class Odometer:
                 v, self.source = 0.0, "wheel"
                 self._info_t_s = last_ok
             elif gps_fresh:
-                v, self.source = float(gps_speed_mps), "gps"  # type: ignore[arg-type]
+                # A GPS at rest reads a few tenths of a m/s of noise: below the stopped
+                # threshold the vehicle stands and the distance stays put.
+                v = float(gps_speed_mps)  # type: ignore[arg-type]
+                v, self.source = (v if v >= STOPPED_MPS else 0.0), "gps"
                 self._info_t_s = gps_t_s
             else:
                 # Dead reckoning at the last speed, from the newest wheel point on (a frozen
