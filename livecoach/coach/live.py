@@ -178,7 +178,7 @@ class LiveCoach:
             self._last_t_s is not None and t_s < self._last_t_s
         ):
             self.rejected += 1
-            return self._output if self._output is not None else self._idle(t_s)
+            return self._output if self._output is not None else self.standby(t_s)
         notices: list[Notice] = []
         self._smooth_power(t_s, power_w)
         d = distance_m
@@ -265,9 +265,6 @@ class LiveCoach:
         The plan's starting target (and the current cue), so the rider sees
         what to push from the first pedal stroke; nothing is updated.
         """
-        return self._idle(t_s)
-
-    def _idle(self, t_s: float) -> CoachOutput:
         point = self.plan.at(0.0)
         cue = self.cues.cue
         return CoachOutput(

@@ -73,7 +73,7 @@ def run(args: argparse.Namespace) -> int:
                         + (f" ({result.outputs_compared} compared)" if result.outputs_compared else ""))
         if result.output_check == "differs":
             print(f"livecoach replay: {path}: the replay does not reproduce the recorded outputs "
-                  f"({result.output_mismatches} difference(s)){_version_note(path)}", file=sys.stderr)
+                  f"({result.output_mismatches} difference(s)){_version_note(result.header)}", file=sys.stderr)
             return 1
         return 0
     if ride is None:
@@ -129,12 +129,11 @@ def _print_text(path: Path, s: dict, what: str, outputs: str | None) -> None:
             print(f"    - {w}")
 
 
-def _version_note(path) -> str:
+def _version_note(header) -> str:
     """Why outputs may differ when another livecoach version made the recording ("" if the same)."""
     from livecoach import __version__
-    from livecoach.recording.reader import RecordingReader
 
-    recorded = RecordingReader(path).header.software_version
+    recorded = header.software_version if header is not None else ""
     if recorded == __version__:
         return ""
     return (f"; it was recorded by livecoach {recorded or 'of unknown version'} and this is "
