@@ -314,7 +314,7 @@ class LiveDragEstimator:
         fields of :meth:`snapshot` the pipeline shows after every event, with
         the same values, without building the whole record. The estimate part
         changes only when a window is taken, so it is kept until then."""
-        kin = self.builder.kinematics(self._t_s)
+        distance_m, speed_mps = self.builder.position(self._t_s)
         res = self._res
         if res is not self._drag_of or self._drag is None:
             if res is None:
@@ -324,7 +324,7 @@ class LiveDragEstimator:
                 drag = (res.theta[0], math.sqrt(max(res.cov[0][0], 0.0)),
                         res.theta[1], math.sqrt(max(res.cov[1][1], 0.0)))
             self._drag, self._drag_of = drag, res
-        return (kin["distance_m"], kin["speed_mps"], *self._drag)
+        return (distance_m, speed_mps, *self._drag)
 
     def pop_alarms(self) -> list[DragAlarm]:
         """Alarms raised since the last call (oldest first)."""

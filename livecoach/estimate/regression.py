@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from operator import mul
 
 from livecoach.estimate.linalg import inverse_spd
 from livecoach.estimate.records import EnergyWindow
@@ -148,11 +149,13 @@ class DragFit:
         acc = 0.0
         wsum = 0.0
         blocks = self.blocks if self._open is None or self._open[5] < 2 else self.blocks + [self._open]
+        memory_s = self.memory_s
+        exp = math.exp
         for b in blocks:
-            wt = 1.0 if self.memory_s is None else math.exp(-max(0.0, t_now - b[1]) / self.memory_s)
+            wt = 1.0 if memory_s is None else exp(-max(0.0, t_now - b[1]) / memory_s)
             if wt < 1e-3:
                 continue
-            r = b[3][k] - sum(b[2][i] * theta[i] for i in range(self.p))
+            r = b[3][k] - sum(map(mul, b[2], theta))  # sum_i X_i theta_i, in index order
             acc += wt * r * r / b[4]
             wsum += wt
         return acc, wsum
@@ -169,19 +172,21 @@ class DragFit:
         n = len(rows)
         if n < 2 * LRV_LAGS + 4:
             return self.lrv_factor
-        p = self.p
-        zs = []
-        ws = []
-        for t1, xt, yt, d in rows:
-            wt = 1.0 if self.memory_s is None else math.exp(-max(0.0, t_now - t1) / self.memory_s)
-            zs.append((yt[k] - sum(xt[i] * theta[i] for i in range(p))) / math.sqrt(d))
-            ws.append(wt)
-        c0 = sum(w * z * z for w, z in zip(ws, zs))
+        # The sums run in index order, as written in the formula; the products are
+        # grouped left to right, w_i z_i first (a replay reproduces them to the bit).
+        memory_s = self.memory_s
+        exp, sqrt = math.exp, math.sqrt
+        zs = [(yt[k] - sum(map(mul, xt, theta))) / sqrt(d) for _, xt, yt, d in rows]
+        if memory_s is None:
+            wz = zs  # every weight 1
+        else:
+            wz = [exp(-max(0.0, t_now - row[0]) / memory_s) * z for row, z in zip(rows, zs)]
+        c0 = sum(map(mul, wz, zs))
         if c0 <= 0.0:
             return 1.0
         acc = 0.0
         for lag in range(1, LRV_LAGS + 1):
-            cl = sum(ws[i] * zs[i] * zs[i - lag] for i in range(lag, n))
+            cl = sum(map(mul, wz[lag:], zs))  # w_i z_i z_(i-lag), i = lag .. n-1
             acc += (1.0 - lag / (LRV_LAGS + 1.0)) * cl
         f = 1.0 + 2.0 * acc / c0
         self.lrv_factor = min(max(f, 1.0), 6.0)

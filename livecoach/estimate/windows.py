@@ -474,6 +474,20 @@ class WindowBuilder:
         return self.course.elevation_m(d_b) - self.course.elevation_m(d_a)
 
     # ------------------------------------------------------------ kinematics
+    def position(self, t_s: float) -> tuple[float | None, float | None]:
+        """``(distance_m, speed_mps)`` at ``t_s``: the two fields of :meth:`kinematics`
+        shown after every event, with the same values, without the rest."""
+        tr = self.track
+        if tr is None or not tr.ts:
+            if (self.gps_t_s is not None and t_s - self.gps_t_s <= GPS_FRESH_S
+                    and self.gps_speed_mps is not None):
+                return None, self.gps_speed_mps
+            return None, None
+        odo = self.odometer
+        if tr is self.wheel and odo is not None:
+            return odo.distance_m(t_s), odo.speed_mps
+        return tr.ds[-1], self._disp_v
+
     def kinematics(self, t_s: float) -> dict[str, Any]:
         """Distance, speed, acceleration and air data at ``t_s`` for the display."""
         tr = self.track
