@@ -220,3 +220,54 @@ def test_estimator_section_is_validated():
         example_ride(estimator={"window_s": 0.1})
     with pytest.raises(ConfigError, match="did you mean 'memory_s'"):
         example_ride(estimator={"memory_sec": 600.0})
+
+
+def test_live_values_give_the_snapshot_fields_after_every_sample():
+    # live_values() (read after every event) must show what snapshot() shows, through a
+    # wheel ride with GPS, including a wheel gap bridged on GPS speed.
+    ride = example_ride()
+    syn = synthesize_ride(ride, cda_m2=CDA, crr=CRR, seed=5, distance_m=1500.0, gps=True)
+    samples = [s for s in syn.samples if not (isinstance(s, WheelSample) and 60.0 < s.t_s < 66.0)]
+    est = LiveDragEstimator(ride)
+    checked = 0
+    for s in samples:
+        est.feed(s)
+        snap = est.snapshot()
+        assert est.live_values() == (snap.distance_m, snap.speed_mps, snap.cda_m2, snap.cda_sd_m2,
+                                     snap.crr, snap.crr_sd), s
+        checked += snap.distance_m is not None
+    assert checked > 1000 and est.snapshot().speed_source == "wheel"
+
+
+def test_long_run_variance_factor_is_the_bartlett_weighted_sum():
+    # Newey & West 1987 (Econometrica 55:703): 1 + 2 sum_{l=1..L} (1 - l/(L+1)) c_l / c_0 on the
+    # whitened, normalised residuals z_i = (y_i - x_i.theta) / sqrt(d_i), each product weighted
+    # by the forgetting weight of its newer row, clipped to [1, 6]. Independent of the module's
+    # loops: numpy on the same rows (seeded).
+    import numpy as np
+
+    from livecoach.estimate.regression import LRV_LAGS, DragFit
+
+    rng = np.random.default_rng(3)
+    fit = DragFit([0.03, 0.004], [[1e-4, 0.0], [0.0, 1e-6]], (0.0, 0.1), [0.0, 0.0], memory_s=300.0)
+    n = 200
+    t = np.cumsum(rng.uniform(4.0, 6.0, n))
+    x = rng.normal(size=(n, 2))
+    d = rng.uniform(0.5, 2.0, n)
+    noise = np.zeros(n)
+    for i in range(1, n):  # positively correlated residuals: the factor is above 1
+        noise[i] = 0.6 * noise[i - 1] + rng.normal()
+    theta = np.array([0.5, -0.2])
+    y0 = x @ theta + noise * np.sqrt(d)
+    fit.rows = [(float(t[i]), list(x[i]), [float(y0[i]), 0.0], float(d[i])) for i in range(n)]
+    got = fit._long_run_factor(0, list(theta), float(t[-1]))
+    z = (y0 - x @ theta) / np.sqrt(d)
+    w = np.exp(-np.maximum(0.0, t[-1] - t) / 300.0)
+    c = [float(np.sum(w[lag:] * z[lag:] * z[:n - lag])) for lag in range(LRV_LAGS + 1)]
+    want = 1.0 + 2.0 * sum((1.0 - lag / (LRV_LAGS + 1.0)) * c[lag] for lag in range(1, LRV_LAGS + 1)) / c[0]
+    assert 1.5 < want < 6.0
+    assert got == pytest.approx(want, rel=1e-12)
+    # white residuals: no inflation below 1 (clipped)
+    fit.rows = [(float(t[i]), list(x[i]), [float(x[i] @ theta + (-1) ** i * 0.3), 0.0], 1.0)
+                for i in range(n)]
+    assert fit._long_run_factor(0, list(theta), float(t[-1])) == 1.0
