@@ -491,29 +491,24 @@ class WindowBuilder:
     def kinematics(self, t_s: float) -> dict[str, Any]:
         """Distance, speed, acceleration and air data at ``t_s`` for the display."""
         tr = self.track
+        distance_m, speed_mps = self.position(t_s)
         out: dict[str, Any] = {
-            "distance_m": None, "speed_mps": None, "accel_mps2": None, "speed_source": None,
-            "speed_stale": True, "airspeed_mps": None, "wind_mps": None,
+            "distance_m": distance_m, "speed_mps": speed_mps, "accel_mps2": None,
+            "speed_source": None, "speed_stale": True, "airspeed_mps": None, "wind_mps": None,
         }
         if self.air_last_t_s is not None and t_s - self.air_last_t_s <= self.cfg.stale_s:
             out["airspeed_mps"] = self.air_last_mps
             out["wind_mps"] = self._wind_ewma
-        gps_fresh = (self.gps_t_s is not None and t_s - self.gps_t_s <= GPS_FRESH_S
-                     and self.gps_speed_mps is not None)
         if tr is None or not tr.ts:
-            if gps_fresh:
-                out.update(speed_mps=self.gps_speed_mps, speed_source="gps", speed_stale=False)
+            if speed_mps is not None:  # a fresh GPS speed
+                out.update(speed_source="gps", speed_stale=False)
             return out
         odo = self.odometer
         if tr is self.wheel and odo is not None:
-            out.update(distance_m=odo.distance_m(t_s), speed_mps=odo.speed_mps,
-                       accel_mps2=odo.accel_mps2, speed_source=odo.source, speed_stale=odo.stale(t_s))
+            out.update(accel_mps2=odo.accel_mps2, speed_source=odo.source, speed_stale=odo.stale(t_s))
             return out
-        d_last = tr.ds[-1]
         last_rx = tr.last_new_point_rx_s if tr.last_new_point_rx_s is not None else t_s  # type: ignore[attr-defined]
-        stale = t_s - last_rx > self.cfg.stale_s
-        out.update(distance_m=d_last, speed_mps=self._disp_v, accel_mps2=None,
-                   speed_source="speed", speed_stale=stale)
+        out.update(speed_source="speed", speed_stale=t_s - last_rx > self.cfg.stale_s)
         return out
 
 
