@@ -99,8 +99,9 @@ def compile_copy(dest: Path, say=print) -> float:
     n = len(list((dest / "livecoach").rglob("*.so")))
     if n == 0:
         raise RuntimeError("compiling produced no extension modules")
-    say(f"  {n} modules compiled in {time.monotonic() - t0:.0f} s")
-    return time.monotonic() - t0
+    build_s = time.monotonic() - t0
+    say(f"  {n} modules compiled in {build_s:.0f} s")
+    return build_s
 
 
 def _replay(package_root: Path, recording: Path) -> dict:
